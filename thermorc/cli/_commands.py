@@ -1,0 +1,3 @@
+"""Import every command module so each registers its command on the app."""
+
+# One line per command module; keep alphabetical to avoid merge collisions.
