@@ -1,0 +1,168 @@
+"""RC network core: matrices, reduction of massless nodes, heat loss coefficients, modes."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+
+from thermorc.errors import NetworkError
+from thermorc.network import PRESETS, Network, preset_parameters
+
+
+def test_1r1c_time_constant_is_rc():
+    # Lumped-capacitance solution: tau = R C (Incropera et al., Fundamentals of Heat and
+    # Mass Transfer, 6th ed., sec. 5.1, eq. 5.7; edition from memory).
+    net = Network.from_preset("1R1C", r_indoor_outdoor_k_per_w=0.005, c_indoor_j_per_k=1e7)
+    tau = net.time_constants_s()
+    assert tau.shape == (1,)
+    assert tau[0] == pytest.approx(0.005 * 1e7, rel=1e-12)
+    assert net.heat_loss_coefficient_w_per_k()["total"] == pytest.approx(200.0, rel=1e-12)
+
+
+def test_2r2c_time_constants_match_closed_form_eigenvalues(rng):
+    # Closed form of the eigenvalues of a 2x2 matrix: lambda = (tr -+ sqrt(tr^2 - 4 det)) / 2
+    # (any linear algebra text), against the network's symmetric-form eigensolver.
+    for _ in range(20):
+        r1, r2 = rng.uniform(1e-4, 1e-2, 2)
+        c1, c2 = rng.uniform(1e6, 1e8, 2)
+        net = Network.from_preset(
+            "2R2C", r_indoor_envelope_k_per_w=r1, r_envelope_outdoor_k_per_w=r2, c_indoor_j_per_k=c1, c_envelope_j_per_k=c2
+        )
+        a = np.array([[-1 / (r1 * c1), 1 / (r1 * c1)], [1 / (r1 * c2), -(1 / r1 + 1 / r2) / c2]])
+        tr, det = np.trace(a), np.linalg.det(a)
+        disc = np.sqrt(tr**2 - 4 * det)
+        expected = np.sort(-2 / np.array([tr - disc, tr + disc]))[::-1]  # tau = -1/lambda
+        np.testing.assert_allclose(net.time_constants_s(), expected, rtol=1e-10)
+        np.testing.assert_allclose(net.state_space().a, a, rtol=1e-12)
+
+
+def test_series_and_parallel_heat_loss_coefficients():
+    # Resistances in series add, conductances in parallel add (Ohm's-law analogy of steady
+    # conduction; Incropera et al., sec. 3.1, from memory).
+    net = Network.from_preset(
+        "3R2C",
+        r_indoor_envelope_k_per_w=0.001,
+        r_envelope_outdoor_k_per_w=0.004,
+        r_indoor_outdoor_k_per_w=0.02,
+        c_indoor_j_per_k=2e6,
+        c_envelope_j_per_k=2e7,
+    )
+    expected = 1 / (0.001 + 0.004) + 1 / 0.02
+    h = net.heat_loss_coefficient_w_per_k()
+    assert h["total"] == pytest.approx(expected, rel=1e-12)
+    assert h["outdoor_c"] == pytest.approx(expected, rel=1e-12)
+
+
+def test_two_boundaries_split_the_loss():
+    net = Network(boundaries=("outdoor_c", "ground_c"), inputs=("heating_w",))
+    net.add_node("indoor", 1e7).add_conductance("indoor", "outdoor_c", 150).add_conductance("indoor", "ground_c", 50)
+    h = net.heat_loss_coefficient_w_per_k()
+    assert h == pytest.approx({"total": 200.0, "outdoor_c": 150.0, "ground_c": 50.0})
+
+
+def test_massless_node_elimination_equals_series_resistance():
+    # A massless surface node between indoor and outdoor must act exactly as two resistances
+    # in series (Kron reduction, Dorfler & Bullo 2013): same A, B as the 1R1C.
+    net = Network(boundaries=("outdoor_c",), inputs=("heating_w",))
+    net.add_node("indoor", 1e7).add_node("surface", 0.0)
+    net.add_resistance("indoor", "surface", 0.002).add_resistance("surface", "outdoor_c", 0.003)
+    net.add_heat_input("heating_w", "indoor")
+    ref = Network(boundaries=("outdoor_c",), inputs=("heating_w",))
+    ref.add_node("indoor", 1e7).add_resistance("indoor", "outdoor_c", 0.005).add_heat_input("heating_w", "indoor")
+    a, b = net.state_space(), ref.state_space()
+    np.testing.assert_allclose(a.a, b.a, rtol=1e-12)
+    np.testing.assert_allclose(a.b, b.b, rtol=1e-12)
+    # Surface temperature: voltage divider T_s = T_in - (T_in - T_out) * 0.002 / 0.005.
+    np.testing.assert_allclose(a.c[1], [0.6], rtol=1e-12)
+    np.testing.assert_allclose(a.d[1], [0.4, 0.0], rtol=1e-12, atol=1e-15)
+
+
+def test_kron_reduction_keeps_slow_modes_of_tiny_capacitance_limit():
+    # A massless node is the limit of a vanishing capacitance: the slow mode of a network with a
+    # very small capacitance must approach that of the reduced network.
+    def build(c_mid):
+        net = Network(boundaries=("outdoor_c",), inputs=("heating_w",))
+        net.add_node("indoor", 5e6).add_node("mid", c_mid).add_node("mass", 3e7)
+        net.add_conductance("indoor", "mid", 300).add_conductance("mid", "mass", 500)
+        net.add_conductance("mid", "outdoor_c", 120).add_conductance("mass", "outdoor_c", 60)
+        return net
+
+    exact = build(0.0).time_constants_s()
+    near = build(1.0).time_constants_s()[:2]
+    np.testing.assert_allclose(near, exact, rtol=1e-5)
+
+
+@pytest.mark.parametrize(
+    "build, match",
+    [
+        (lambda n: n.add_node("indoor", -1.0), "expected >= 0"),
+        (lambda n: n.add_node("indoor", float("nan")), "finite"),
+        (lambda n: n.add_node("indoor", 1e7).add_resistance("indoor", "outdoor_c", 0.0), "expected > 0"),
+        (lambda n: n.add_node("indoor", 1e7).add_resistance("indoor", "outdoor_c", -0.01), "expected > 0"),
+        (lambda n: n.add_node("indoor", 1e7).add_conductance("indoor", "outdoor_c", float("inf")), "finite"),
+        (lambda n: n.add_node("indoor", 1e7).add_conductance("indoor", "attic", 10), "neither a node"),
+        (lambda n: n.add_node("indoor", 1e7).add_node("indoor", 1e6), "already used"),
+    ],
+)
+def test_invalid_elements_are_refused(build, match):
+    with pytest.raises(NetworkError, match=match):
+        build(Network())
+
+
+def test_disconnected_node_and_node_without_boundary_are_refused():
+    net = Network().add_node("indoor", 1e7).add_node("loft", 1e6).add_conductance("indoor", "outdoor_c", 100)
+    with pytest.raises(NetworkError, match="not connected to anything"):
+        net.state_space()
+    net = Network().add_node("a", 1e7).add_node("b", 1e6).add_conductance("a", "b", 100)
+    with pytest.raises(NetworkError, match="no path to any boundary"):
+        net.time_constants_s()
+    with pytest.raises(NetworkError, match="no node with a heat capacity"):
+        Network().add_node("a", 0.0).add_conductance("a", "outdoor_c", 1.0).state_space()
+
+
+def test_preset_parameter_errors_name_the_parameters():
+    with pytest.raises(NetworkError, match="needs parameter"):
+        Network.from_preset("2R2C", r_indoor_envelope_k_per_w=0.001)
+    with pytest.raises(NetworkError, match="has no parameter"):
+        Network.from_preset("1R1C", r_indoor_outdoor_k_per_w=0.01, c_indoor_j_per_k=1e7, colour=3)
+    with pytest.raises(NetworkError, match="unknown model"):
+        Network.from_preset("4R3C")
+    assert set(PRESETS) == {"1R1C", "2R2C", "3R2C"}
+    assert "solar_aperture_m2" in preset_parameters("3R2C")
+
+
+@st.composite
+def random_networks(draw):
+    """Random connected networks with some massless nodes (property tests)."""
+    n = draw(st.integers(2, 6))
+    caps = [draw(st.sampled_from([0.0, 1e5, 1e6, 1e7, 5e7])) for _ in range(n)]
+    if all(c == 0 for c in caps):
+        caps[0] = 1e7
+    net = Network(boundaries=("outdoor_c", "ground_c"), inputs=("heating_w",))
+    for i, c in enumerate(caps):
+        net.add_node(f"n{i}", c)
+    for i in range(1, n):  # a spanning chain keeps the graph connected
+        net.add_conductance(f"n{i - 1}", f"n{i}", draw(st.floats(1.0, 2000.0)))
+    for i in range(n):
+        if draw(st.booleans()) or i == 0:
+            net.add_conductance(f"n{i}", draw(st.sampled_from(["outdoor_c", "ground_c"])), draw(st.floats(1.0, 500.0)))
+    net.add_heat_input("heating_w", "n0")
+    return net
+
+
+@settings(max_examples=60, deadline=None)
+@given(random_networks())
+def test_reduction_preserves_steady_state(net):
+    # Steady state from the full (unreduced) Laplacian system must equal the reduced one:
+    # the Schur complement is exact for the static problem (Dorfler & Bullo 2013).
+    k, e, caps = net.matrices()
+    u = np.array([3.0, 8.0, 1500.0])
+    full = np.linalg.solve(k, e @ u)
+    space = net.state_space()
+    x = np.linalg.solve(space.k_reduced_w_per_k, space.e_reduced @ u)
+    y = space.c @ x + space.d @ u
+    np.testing.assert_allclose(y, full, rtol=1e-9, atol=1e-9)
+    # The reduced matrix is symmetric and the modes decay: real, negative eigenvalues.
+    np.testing.assert_allclose(space.k_reduced_w_per_k, space.k_reduced_w_per_k.T, rtol=1e-12, atol=1e-9)
+    eig = np.linalg.eigvals(space.a)
+    assert np.all(np.abs(eig.imag) < 1e-9 * np.abs(eig.real).max())
+    np.testing.assert_allclose(np.sort(-1 / eig.real)[::-1], net.time_constants_s(), rtol=1e-7)
