@@ -1,3 +1,4 @@
 """Import every command module so each registers its command on the app."""
 
 # One line per command module; keep alphabetical to avoid merge collisions.
+from thermorc.cli import biot  # noqa: F401
