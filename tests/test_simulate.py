@@ -239,3 +239,17 @@ def test_ideal_heater_floats_when_warm_and_refuses_massless_node():
     massless.add_heat_input("heating_w", "indoor")
     with pytest.raises(NetworkError, match="must have a heat capacity"):
         hold_setpoint(massless, inputs[["outdoor_c"]], 20.0)
+
+
+def test_compiled_sections_equal_scipy_lfilter(rng):
+    # scipy.signal.lfilter with b=[1], a=[1, -a_j] and zi = a_j z0 is the reference recursion.
+    from thermorc.simulate import _sections_lfilter, first_order_sections
+
+    a = np.array([0.999999, 0.93, 0.2, 1e-12])
+    drive = rng.normal(size=(4, 5000))
+    z0 = rng.normal(size=4)
+    ours = np.empty_like(drive)
+    ref = np.empty_like(drive)
+    first_order_sections(a, drive, z0, ours)
+    _sections_lfilter(a, drive, z0, ref)
+    np.testing.assert_allclose(ours, ref, rtol=1e-12, atol=1e-12)

@@ -51,6 +51,7 @@ __all__ = [
     "hold_setpoint",
     "steady_state",
     "SimulationResult",
+    "run_modes",
 ]
 
 _SERIES_BELOW = 1e-3  # x = rate*dt below which the phi functions use their Taylor series
@@ -208,7 +209,8 @@ def _input_array(network: Network, inputs, where="inputs"):
             raise InputError(
                 f"missing input column(s) {missing}; the network needs {names}", path=None, column=missing[0]
             )
-        u = inputs[names].to_numpy(dtype=float)
+        frame = inputs if list(inputs.columns) == names else inputs[names]
+        u = frame.to_numpy(dtype=float)
         index = inputs.index
     else:
         u = np.asarray(inputs, dtype=float)
@@ -228,8 +230,11 @@ def _time_steps(index, dt_s, n):
     if isinstance(index, pd.DatetimeIndex):
         if n < 2:
             return np.array([float(dt_s)]) if dt_s else np.zeros(0)
-        t = (index - index[0]) / pd.Timedelta(seconds=1)
-        dts = np.diff(np.asarray(t, dtype=float))
+        if index.freq is not None and isinstance(index.freq, pd.tseries.offsets.Tick):
+            # A regular index with a fixed frequency needs no differencing.
+            dts = np.full(n - 1, pd.Timedelta(index.freq).total_seconds())
+        else:
+            dts = np.diff(index.as_unit("ns").asi8).astype(float) / 1e9
     else:
         if dt_s is None:
             raise InputError("inputs without a DatetimeIndex need dt_s (the step in seconds)")
@@ -243,6 +248,8 @@ def _runs(dts):
     """Start and length of each run of equal steps."""
     if dts.size == 0:
         return []
+    if dts[0] == dts[-1] and dts.min() == dts.max():
+        return [(0, int(dts.size))]
     change = np.flatnonzero(np.abs(np.diff(dts)) > 1e-9 * dts[1:]) + 1
     starts = np.concatenate([[0], change])
     ends = np.concatenate([change, [dts.size]])
@@ -291,7 +298,7 @@ def _initial_state(network, space, u0, x0):
     return x0
 
 
-def simulate(network: Network, inputs, x0=None, dt_s=None, boundary_hold="foh"):
+def simulate(network: Network, inputs, x0=None, dt_s=None, boundary_hold="foh", interval_means=True):
     """
     Simulate the node temperatures of a network for given inputs.
 
@@ -310,6 +317,9 @@ def simulate(network: Network, inputs, x0=None, dt_s=None, boundary_hold="foh"):
         Step when ``inputs`` has no DatetimeIndex. [s]
     boundary_hold : {'foh', 'zoh'}
         Hold for boundary temperatures; heat inputs always use a zero-order hold.
+    interval_means : bool
+        Also compute the exact mean of each node temperature over each interval (needed
+        for energy accounting); ``mean_temperatures_c`` is ``None`` otherwise.
 
     Returns
     -------
@@ -328,64 +338,149 @@ def simulate(network: Network, inputs, x0=None, dt_s=None, boundary_hold="foh"):
         raise InputError("no input rows to simulate")
     dts = _time_steps(index, dt_s, n_rows)
     x_start = _initial_state(network, space, u[0], x0)
-    states, means, x_end = _run_modes(space, u, dts, x_start, _hold_mask(space, boundary_hold))
+    states, means, x_end = run_modes(space, u, dts, x_start, _hold_mask(space, boundary_hold), means=interval_means)
     return _result(space, index, u, states, means, x_end, inputs)
 
 
-def _run_modes(space: StateSpace, u, dts, x_start, foh_mask):
-    """Modal recursion through lfilter; returns states (N, n), interval means (N, n), end state."""
-    modes = modes_of(space)
+def _sections_lfilter(a, drive, z0, out):
+    for j in range(a.size):
+        out[j] = scipy.signal.lfilter([1.0], [1.0, -a[j]], drive[j], zi=[a[j] * z0[j]])[0]
+
+
+def _sections_loop(a, drive, z0, out):
+    for j in range(a.size):
+        zj = z0[j]
+        aj = a[j]
+        row = drive[j]
+        dest = out[j]
+        for k in range(row.shape[0]):
+            zj = aj * zj + row[k]
+            dest[k] = zj
+
+
+def first_order_sections(a, drive, z0, out):
+    r"""
+    Run parallel first-order sections :math:`z_{k+1} = a_j z_k + w_k` (one per mode).
+
+    This is :func:`scipy.signal.lfilter` with ``b = [1]``, ``a = [1, -a_j]`` and initial
+    condition ``a_j z_0``: the convolution of each mode's impulse response :math:`a_j^k` with
+    its input. With numba installed the same recursion runs as one compiled loop over all
+    modes, which avoids one library call per mode; the tests check it against ``lfilter``.
+
+    Parameters
+    ----------
+    a : numpy.ndarray, shape (n,)
+        Pole of each section, ``exp(-rate dt)``. [unitless]
+    drive : numpy.ndarray, shape (n, L)
+        Input of each section per step.
+    z0 : numpy.ndarray, shape (n,)
+        Section states before the first step.
+    out : numpy.ndarray, shape (n, L)
+        Filled in place with the states after each step.
+    """
+    _sections(np.ascontiguousarray(a), np.ascontiguousarray(drive), np.ascontiguousarray(z0), out)
+
+
+try:  # numba compiles the recursion; without it, lfilter does the same work per mode.
+    import numba
+
+    _sections = numba.njit(cache=True)(_sections_loop)
+except ImportError:  # pragma: no cover - numba is a declared dependency
+    _sections = _sections_lfilter
+
+
+def run_modes(space: StateSpace, u, dts, x_start, foh_mask, means=True, modes=None):
+    """
+    Array core of :func:`simulate`: the modal recursion through ``lfilter``.
+
+    Parameters
+    ----------
+    space : StateSpace
+        Continuous state space.
+    u : numpy.ndarray, shape (N, m)
+        Inputs in ``space.inputs`` order.
+    dts : numpy.ndarray, shape (N - 1,)
+        Steps between rows. [s]
+    x_start : numpy.ndarray, shape (n,)
+        State at the first row. [°C]
+    foh_mask : numpy.ndarray of bool, shape (m,)
+        Inputs held linearly between samples; the others are held constant.
+    means : bool
+        Also return the exact interval means of the states.
+    modes : Modes, optional
+        Precomputed :func:`~thermorc.network.modes_of` of ``space``.
+
+    Returns
+    -------
+    states : numpy.ndarray, shape (N, n)
+        States at the rows. [°C]
+    state_means : numpy.ndarray, shape (N, n) or None
+        Means over the interval that starts at each row; the last interval repeats the
+        last step with held inputs. [°C]
+    x_end : numpy.ndarray, shape (n,)
+        State at the end of the last interval. [°C]
+    """
+    modes = modes_of(space) if modes is None else modes
     beta = modes.w_inv @ space.b  # modal input matrix (n, m)
+    has_foh = bool(np.any(foh_mask))
     beta_foh = beta * foh_mask[None, :]
     n_rows = u.shape[0]
     n = beta.shape[0]
-    z = np.empty((n_rows, n))
-    zmean = np.empty((n_rows, n))
-    z[0] = modes.w_inv @ x_start
-    # The last interval has no next sample: repeat the last step with held inputs.
-    last_dt = dts[-1] if dts.size else 3600.0
-    u_ext = np.vstack([u, u[-1:]])
-    dts_ext = np.concatenate([dts, [last_dt]])
-    z_end = None
-    for start, length in _runs(dts_ext):
-        dt = dts_ext[start]
-        x = modes.rates_per_s * dt
+    # Mode-major arrays keep each mode's sequence contiguous for lfilter.
+    z = np.empty((n, n_rows))
+    z[:, 0] = modes.w_inv @ x_start
+    zmean = np.empty((n, n_rows)) if means else None
+    du = np.diff(u, axis=0) if has_foh else None
+    rates = modes.rates_per_s
+    for start, length in _runs(dts):
+        dt = dts[start]
+        x = rates * dt
         a = np.exp(-x)
         phi1, phi2, phi3 = phi_functions(x)
         seg = slice(start, start + length)
-        p = u_ext[seg] @ beta.T
-        q = (u_ext[start + 1:start + length + 1] - u_ext[seg]) @ beta_foh.T
-        drive = dt * (phi1 * p + phi2 * q)
-        stop = start + length
-        for j in range(n):
-            out = scipy.signal.lfilter([1.0], [1.0, -a[j]], drive[:, j], zi=[a[j] * z[start, j]])[0]
-            if stop < n_rows:
-                z[start + 1:stop + 1, j] = out
-            else:
-                z[start + 1:stop, j] = out[:-1]
-                if j == 0:
-                    z_end = np.empty(n)
-                z_end[j] = out[-1]
-        zmean[seg] = z[seg] * phi1 + dt * (phi2 * p + phi3 * q)
-    states = z @ modes.w.T
-    means = zmean @ modes.w.T
-    return states, means, modes.w @ z_end
+        drive = ((dt * phi1)[:, None] * beta) @ u[seg].T
+        if has_foh:
+            drive += ((dt * phi2)[:, None] * beta_foh) @ du[seg].T
+        first_order_sections(a, drive, z[:, start], z[:, start + 1:start + length + 1])
+        if means:
+            zmean[:, seg] = phi1[:, None] * z[:, seg] + ((dt * phi2)[:, None] * beta) @ u[seg].T
+            if has_foh:
+                zmean[:, seg] += ((dt * phi3)[:, None] * beta_foh) @ du[seg].T
+    # The last interval has no next sample: repeat the last step with inputs held.
+    dt = dts[-1] if dts.size else 3600.0
+    x = rates * dt
+    phi1, phi2, _ = phi_functions(x)
+    z_last = z[:, -1]
+    z_end = np.exp(-x) * z_last + dt * phi1 * (beta @ u[-1])
+    if means:
+        zmean[:, -1] = phi1 * z_last + dt * phi2 * (beta @ u[-1])
+    states = (modes.w @ z).T
+    state_means = (modes.w @ zmean).T if means else None
+    return states, state_means, modes.w @ z_end
+
+
+def _outputs(space, states, u):
+    """All node temperatures from states and inputs (massless nodes are algebraic)."""
+    if len(space.outputs) == len(space.states):
+        order = [space.outputs.index(s) for s in space.states]
+        if order == list(range(len(order))):
+            return states
+    return states @ space.c.T + u @ space.d.T
 
 
 def _result(space, index, u, states, means, x_end, inputs, shortfall=None, message="ok"):
-    y = states @ space.c.T + u @ space.d.T
-    # Interval means of the massless nodes are linear in the state and input means.
-    u_next = np.vstack([u[1:], u[-1:]])
-    hold = np.zeros(u.shape[1], dtype=bool)
-    hold[: space.n_boundaries] = True
-    u_mean = np.where(hold[None, :], 0.5 * (u + u_next), u)
-    y_mean = means @ space.c.T + u_mean @ space.d.T
-    frame_inputs = inputs.copy() if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u, index=index, columns=space.inputs)
-    temps = pd.DataFrame(y, index=index, columns=list(space.outputs))
-    mean_temps = pd.DataFrame(y_mean, index=index, columns=list(space.outputs))
+    y = _outputs(space, states, u)
+    mean_temps = None
+    if means is not None:
+        # Interval means of the massless nodes are linear in the state and input means.
+        u_mean = u.copy()
+        nb = space.n_boundaries
+        u_mean[:-1, :nb] = 0.5 * (u[:-1, :nb] + u[1:, :nb])
+        mean_temps = pd.DataFrame(_outputs(space, means, u_mean), index=index, columns=list(space.outputs))
+    frame_inputs = inputs if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u, index=index, columns=space.inputs)
     short = None if shortfall is None else pd.Series(shortfall, index=index, name="shortfall_w")
     return SimulationResult(
-        temperatures_c=temps,
+        temperatures_c=pd.DataFrame(y, index=index, columns=list(space.outputs)),
         mean_temperatures_c=mean_temps,
         inputs=frame_inputs,
         final_state_c=x_end,
@@ -489,7 +584,7 @@ def hold_setpoint(
     u_used[:, ci] = heat
     frame = inputs.copy() if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u_used, index=index, columns=space.inputs)
     frame[channel] = heat
-    states, means, x_end = _run_modes(space, u_used, dts, x_start, _hold_mask(space, boundary_hold))
+    states, means, x_end = run_modes(space, u_used, dts, x_start, _hold_mask(space, boundary_hold))
     msg = "ok" if not np.any(short > 0) else "heater capacity was not enough in some intervals"
     return _result(space, index, u_used, states, means, x_end, frame, shortfall=short, message=msg)
 
