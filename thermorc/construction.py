@@ -59,6 +59,7 @@ __all__ = [
     "effective_areal_capacity",
     "thickness_limited_capacity",
     "biot_number",
+    "lumped_time_constant_s",
     "element_biot",
     "inner_leaf",
     "plane_wall_eigenvalues",
@@ -803,6 +804,36 @@ def biot_number(h_w_per_m2k, characteristic_length_m, conductivity_w_per_mk):
         conductivity_w_per_mk, float)
 
 
+def lumped_time_constant_s(density_kg_per_m3, specific_heat_j_per_kgk, characteristic_length_m, h_w_per_m2k):
+    r"""
+    Time constant of a lumped solid exchanging heat at its surface.
+
+    Parameters
+    ----------
+    density_kg_per_m3 : numeric
+        [kg m-3]
+    specific_heat_j_per_kgk : numeric
+        [J kg-1 K-1]
+    characteristic_length_m : numeric
+        Volume over exposed surface area. [m]
+    h_w_per_m2k : numeric
+        Surface heat-transfer coefficient. [W m-2 K-1]
+
+    Returns
+    -------
+    numeric
+        :math:`\tau = \rho c L_c / h`; the lumped temperature follows
+        :math:`(T - T_\infty)/(T_i - T_\infty) = e^{-t/\tau}`. [s]
+
+    References
+    ----------
+    .. [1] F. P. Incropera et al., Fundamentals of Heat and Mass Transfer, 6th ed., section
+       5.1, eq. 5.7 (from memory).
+    """
+    return (np.asarray(density_kg_per_m3, float) * np.asarray(specific_heat_j_per_kgk, float)
+            * np.asarray(characteristic_length_m, float) / np.asarray(h_w_per_m2k, float))
+
+
 def element_biot(element):
     r"""
     Biot number of a whole element and of each of its layers.
@@ -1118,6 +1149,7 @@ class ElementReport:
     thickness_over_penetration: float | None
     biot: float | None
     lumped_ok: bool | None
+    lumped_time_constant_h: float | None
     lumping_error: dict | None
     inner_leaf: dict | None = None
     coupling_resistance_m2k_per_w: float | None = None
@@ -1190,6 +1222,9 @@ def _element_report(element):
         penetration_depth_m=None if inner is None else inner["penetration_depth_m"],
         thickness_over_penetration=xi_total if layers else None,
         biot=bi["biot"],
+        lumped_time_constant_h=None if bi["biot"] is None else float(
+            sum(lr.areal_capacity_j_m2k for lr in element.layers) * bi["characteristic_length_m"]
+            / max(element.thickness_m, 1e-300) / bi["h_w_per_m2k"] / 3600.0),
         lumped_ok=None if bi["biot"] is None else bool(bi["biot"] < LUMPED_BIOT_LIMIT),
         lumping_error=None if bi["biot"] is None else lumping_error(bi["biot"]),
         inner_leaf=leaf,
