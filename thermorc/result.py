@@ -1,0 +1,331 @@
+"""
+Calibration results: the container that RESULT.json stores and every later stage reads.
+
+A :class:`CalibrationResult` holds what a calibration found (the network parameters in SI,
+internal gains, uncertainty, fit metrics, warnings) and enough to rebuild the model for
+simulation and forecasting: :meth:`CalibrationResult.network` and
+:meth:`CalibrationResult.internal_gains_w`. It adds no algorithm of its own.
+
+The JSON keys are a contract for scripts downstream; keep them stable:
+``model``, ``parameters``, ``heat_loss_coefficient_w_per_k``, ``time_constants_h``,
+``capacitance_j_per_k``, ``fit`` (``rmse_k``, ``cv_rmse_pct``, ``nmbe_pct``, ``n_samples``)
+and ``warnings``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from thermorc.errors import InputError
+from thermorc.network import PRESETS, Network, preset_parameters
+
+__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "RESULT_FORMAT"]
+
+#: Identifies the file layout; bump when keys change incompatibly.
+RESULT_FORMAT = "thermorc-calibration/1"
+
+#: Internal-gain parameters a result may carry besides the network's own. [W]
+GAIN_PARAMETERS = ("internal_gains_w", "internal_gains_day_w", "internal_gains_night_w")
+
+
+@dataclass
+class CalibrationResult:
+    """
+    What a calibration found, in SI units.
+
+    Attributes
+    ----------
+    model : str
+        Preset name (``"1R1C"``, ``"2R2C"``, ``"3R2C"``).
+    parameters : dict
+        Parameter name -> value: the preset's R [K W⁻¹], C [J K⁻¹], solar aperture [m²] and
+        share, plus internal gains [W] (``internal_gains_w``, or the day/night pair).
+    heat_loss_coefficient_w_per_k : float
+        Steady-state UA seen from the indoor node. [W K⁻¹]
+    time_constants_h : list of float
+        Relaxation times, descending. [h]
+    capacitance_j_per_k : float
+        Sum of node heat capacities. [J K⁻¹]
+    fit : dict
+        Fit metrics: ``rmse_k``, ``bias_k``, ``cv_rmse_pct``, ``nmbe_pct``, ``n_samples``...
+    warnings : list of str
+        Plain-words warnings, repeated from the calibration.
+    std_errors : dict
+        Parameter or derived quantity -> standard error (same unit as the value).
+    intervals : dict
+        Name -> ``[low, high]`` 95 % interval.
+    covariance : dict or None
+        ``{"names": [...], "space": "log", "matrix": [[...]]}``: covariance of the natural
+        logarithms of the positive parameters (how the fit works), or ``None``.
+    gains_schedule : dict
+        ``{"kind": "constant"}`` or ``{"kind": "day_night", "day_start_h": 7, "night_start_h": 23}``
+        (local time of the site).
+    solar_input : str
+        Which irradiance the aperture multiplies (``"ghi_w_m2"``: global horizontal).
+    site : dict
+        ``latitude``, ``longitude``, ``tz`` where known.
+    step_s : float
+        Model step used in calibration. [s]
+    extras : dict
+        Anything else worth keeping (model comparison, diagnostics, provenance).
+    """
+
+    model: str
+    parameters: dict
+    heat_loss_coefficient_w_per_k: float = math.nan
+    time_constants_h: list = field(default_factory=list)
+    capacitance_j_per_k: float = math.nan
+    fit: dict = field(default_factory=dict)
+    warnings: list = field(default_factory=list)
+    std_errors: dict = field(default_factory=dict)
+    intervals: dict = field(default_factory=dict)
+    covariance: dict | None = None
+    gains_schedule: dict = field(default_factory=lambda: {"kind": "constant"})
+    solar_input: str = "ghi_w_m2"
+    site: dict = field(default_factory=dict)
+    step_s: float = 300.0
+    extras: dict = field(default_factory=dict)
+
+    # -- the model -------------------------------------------------------------------------
+    def network(self, parameters=None) -> Network:
+        """
+        Rebuild the calibrated network.
+
+        Parameters
+        ----------
+        parameters : dict, optional
+            Replacement values (e.g. a Monte Carlo draw); default: the calibrated ones.
+
+        Returns
+        -------
+        Network
+        """
+        values = dict(self.parameters if parameters is None else parameters)
+        allowed = set(preset_parameters(self.model))
+        return Network.from_preset(self.model, {k: v for k, v in values.items() if k in allowed})
+
+    def internal_gains_w(self, index, parameters=None):
+        """
+        Unlogged internal gains over an index, from the calibrated gain model.
+
+        Parameters
+        ----------
+        index : pandas.DatetimeIndex
+            Stamps (tz-aware; the day/night split uses the index's own local time).
+        parameters : dict, optional
+            Replacement values; default: the calibrated ones.
+
+        Returns
+        -------
+        pandas.Series
+            Mean internal gain over each interval. [W]
+        """
+        p = self.parameters if parameters is None else parameters
+        if self.gains_schedule.get("kind") == "day_night":
+            hours = index.hour + index.minute / 60.0
+            day = (hours >= self.gains_schedule.get("day_start_h", 7)) & (
+                hours < self.gains_schedule.get("night_start_h", 23)
+            )
+            values = np.where(day, p["internal_gains_day_w"], p["internal_gains_night_w"])
+        else:
+            values = np.full(len(index), float(p.get("internal_gains_w", 0.0)))
+        return pd.Series(values, index=index, name="internal_w")
+
+    def parameter_draws(self, n_draws, seed=0):
+        """
+        Random parameter sets from the calibration's covariance (Monte Carlo).
+
+        Parameters
+        ----------
+        n_draws : int
+            How many draws.
+        seed : int
+            Seed of ``numpy.random.default_rng``, for reproducible results.
+
+        Returns
+        -------
+        list of dict
+            Parameter dicts like :attr:`parameters`. Positive parameters are drawn as
+            log-normal (the fit's own parameterisation), so every draw is physical.
+
+        Raises
+        ------
+        ValueError
+            When the result has no usable covariance.
+        """
+        cov = self.covariance or {}
+        names = cov.get("names") or []
+        matrix = np.asarray(cov.get("matrix") or [], dtype=float)
+        if not names or matrix.shape != (len(names), len(names)) or not np.all(np.isfinite(matrix)):
+            raise ValueError("this calibration result has no usable parameter covariance")
+        rng = np.random.default_rng(seed)
+        centre = np.array([self.parameters[n] for n in names], dtype=float)
+        log_space = cov.get("space", "log") == "log"
+        mean = np.log(centre) if log_space else centre
+        # Eigen-decomposition tolerates a covariance that is only positive semi-definite.
+        vals, vecs = np.linalg.eigh(0.5 * (matrix + matrix.T))
+        root = vecs * np.sqrt(np.clip(vals, 0, None))
+        draws = mean + rng.standard_normal((int(n_draws), len(names))) @ root.T
+        if log_space:
+            draws = np.exp(draws)
+        out = []
+        for row in draws:
+            p = dict(self.parameters)
+            p.update({n: float(v) for n, v in zip(names, row)})
+            out.append(p)
+        return out
+
+    # -- files -----------------------------------------------------------------------------
+    def to_dict(self):
+        """The RESULT.json content as plain Python types."""
+        return {
+            "format": RESULT_FORMAT,
+            "model": self.model,
+            "parameters": {k: float(v) for k, v in self.parameters.items()},
+            "heat_loss_coefficient_w_per_k": float(self.heat_loss_coefficient_w_per_k),
+            "time_constants_h": [float(t) for t in self.time_constants_h],
+            "capacitance_j_per_k": float(self.capacitance_j_per_k),
+            "fit": self.fit,
+            "warnings": list(self.warnings),
+            "std_errors": self.std_errors,
+            "intervals": self.intervals,
+            "covariance": self.covariance,
+            "gains_schedule": self.gains_schedule,
+            "solar_input": self.solar_input,
+            "site": self.site,
+            "step_s": float(self.step_s),
+            **self.extras,
+        }
+
+    @classmethod
+    def from_dict(cls, data, path=None):
+        """
+        Rebuild a result from :meth:`to_dict` output, checking what the model needs.
+
+        Parameters
+        ----------
+        data : dict
+            Parsed RESULT.json.
+        path : str, optional
+            File name for error messages.
+
+        Returns
+        -------
+        CalibrationResult
+        """
+        if not isinstance(data, dict):
+            raise InputError("expected a JSON object at the top level", path=path)
+        model = data.get("model")
+        if not isinstance(model, str) or model.upper() not in PRESETS:
+            raise InputError(
+                f"'model' is {model!r} (expected one of {', '.join(PRESETS)})", path=path, column="model"
+            )
+        params = data.get("parameters")
+        if not isinstance(params, dict):
+            raise InputError("'parameters' is missing or not an object", path=path, column="parameters")
+        clean = {}
+        for key, value in params.items():
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+                raise InputError(f"{value!r} is not a finite number", path=path, column=f"parameters.{key}")
+            clean[key] = float(value)
+        needed = PRESETS[model.upper()].parameters
+        missing = [p for p in needed if p not in clean]
+        if missing:
+            raise InputError(f"model {model} needs parameter(s) {missing}", path=path, column="parameters")
+        known = {
+            "format", "model", "parameters", "heat_loss_coefficient_w_per_k", "time_constants_h",
+            "capacitance_j_per_k", "fit", "warnings", "std_errors", "intervals", "covariance",
+            "gains_schedule", "solar_input", "site", "step_s",
+        }
+        result = cls(
+            model=model.upper(),
+            parameters=clean,
+            heat_loss_coefficient_w_per_k=_number(data.get("heat_loss_coefficient_w_per_k")),
+            time_constants_h=list(data.get("time_constants_h") or []),
+            capacitance_j_per_k=_number(data.get("capacitance_j_per_k")),
+            fit=dict(data.get("fit") or {}),
+            warnings=[str(w) for w in (data.get("warnings") or [])],
+            std_errors=dict(data.get("std_errors") or {}),
+            intervals=dict(data.get("intervals") or {}),
+            covariance=data.get("covariance"),
+            gains_schedule=dict(data.get("gains_schedule") or {"kind": "constant"}),
+            solar_input=str(data.get("solar_input") or "ghi_w_m2"),
+            site=dict(data.get("site") or {}),
+            step_s=_number(data.get("step_s"), 300.0),
+            extras={k: v for k, v in data.items() if k not in known},
+        )
+        kind = result.gains_schedule.get("kind")
+        if kind == "day_night":
+            for key in ("internal_gains_day_w", "internal_gains_night_w"):
+                if key not in clean:
+                    raise InputError(f"day/night internal gains need '{key}'", path=path, column="parameters")
+        elif kind != "constant":
+            raise InputError(
+                f"gains_schedule kind is {kind!r} (expected 'constant' or 'day_night')", path=path, column="gains_schedule"
+            )
+        try:
+            result.network()
+        except InputError as exc:
+            raise InputError(exc.message, path=path, column="parameters") from None
+        return result
+
+    @classmethod
+    def from_json(cls, path):
+        """
+        Read a RESULT.json file.
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            The file.
+
+        Returns
+        -------
+        CalibrationResult
+
+        Raises
+        ------
+        InputError
+            Unreadable file, invalid JSON (with its line), or missing keys.
+        """
+        try:
+            with open(path, "rb") as handle:
+                raw = handle.read()
+            text = raw.decode("utf-8")
+        except UnicodeDecodeError:
+            raise InputError("is not UTF-8 text (expected a RESULT.json written by thermorc)", path=path) from None
+        except IsADirectoryError:
+            raise InputError("is a directory (expected a RESULT.json file)", path=path) from None
+        except FileNotFoundError:
+            raise InputError("no such file", path=path) from None
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise InputError(f"invalid JSON: {exc.msg}", path=path, row=exc.lineno) from None
+        return cls.from_dict(data, path=str(path))
+
+    def summary(self):
+        """A short plain-text summary for people."""
+        lines = [
+            f"model {self.model}",
+            f"heat loss coefficient {self.heat_loss_coefficient_w_per_k:.1f} W/K",
+            "time constants " + ", ".join(f"{t:.1f}" for t in self.time_constants_h) + " h",
+            f"total capacitance {self.capacitance_j_per_k / 1e6:.1f} MJ/K",
+        ]
+        if self.fit:
+            lines.append(
+                "fit: " + ", ".join(f"{k} {v:.3g}" if isinstance(v, float) else f"{k} {v}" for k, v in self.fit.items())
+            )
+        lines += [f"warning: {w}" for w in self.warnings]
+        return "\n".join(lines)
+
+
+def _number(value, default=math.nan):
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value)
+    return default
