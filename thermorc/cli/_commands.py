@@ -3,3 +3,4 @@
 # One line per command module; keep alphabetical to avoid merge collisions.
 from thermorc.cli import biot  # noqa: F401
 from thermorc.cli import inspect  # noqa: F401
+from thermorc.cli import demo  # noqa: F401
