@@ -279,13 +279,14 @@ def test_plane_wall_series_matches_a_finite_volume_solution(bi):
 
 
 def test_lumping_error_is_small_for_small_biot_and_grows_with_biot():
-    # Incropera et al. ch. 5: the lumped model is accurate for Bi < 0.1 (error within a few %).
+    # Incropera et al. ch. 5: the lumped model is accurate for Bi < 0.1 (the book gives no
+    # figure; "a few per cent" at the criterion is our reading, bounds below set loosely).
     bis = [0.01, 0.03, 0.1, 0.3, 1.0, 3.0, 10.0]
     errors = [lumping_error(b) for b in bis]
     mean_err = [e["max_error_mean_pct"] for e in errors]
     surf_err = [e["max_error_surface_pct"] for e in errors]
     assert mean_err[0] < 0.2 and surf_err[0] < 0.5
-    assert mean_err[2] < 1.5 and surf_err[2] < 3.0  # at the Bi = 0.1 criterion
+    assert mean_err[2] < 2.0 and surf_err[2] < 4.0  # at the Bi = 0.1 criterion
     assert mean_err[-1] > 20
     assert np.all(np.diff(mean_err) > 0) and np.all(np.diff(surf_err) > 0)
     # Slowest exact mode: zeta1^2 = Bi - Bi^2/3 + O(Bi^3) (series of zeta tan zeta = Bi), so
