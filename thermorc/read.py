@@ -220,7 +220,7 @@ def parse_times(raw, path, column, row0, tz=None, fmt=None, ambiguous="infer", n
             i = _first(has_off != has_off[0])
             kind = "has a UTC offset" if has_off[i] else "has no UTC offset"
             raise InputError(
-                f"time {show(text.iloc[i])} {kind}, unlike row {row0} (expected every time "
+                f"time {show(text.iloc[i])} {kind}, unlike the first row (expected every time "
                 "with an offset, or every time without one plus a time zone)",
                 path=path, row=row0 + i, column=column,
             )
@@ -372,7 +372,7 @@ def _note_spring(naive, tz, notes):
         return
     try:
         start, end = naive.min(), naive.max()
-        days = pd.date_range(start.normalize(), end.normalize(), freq="D")
+        days = pd.date_range(start.normalize() - pd.Timedelta(days=1), end.normalize(), freq="D")
         if len(days) > 4000:
             return
         offs = pd.DatetimeIndex(days + pd.Timedelta(hours=12)).tz_localize(tz)
@@ -785,7 +785,7 @@ def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplic
         rows = rows[~blank]
         notes.append(f"{int(blank.sum())} blank lines skipped")
     if len(raw) == 0:
-        raise InputError("has a header but no data rows", path=path, row=row0)
+        raise InputError("has a header but no data rows", path=path, row=row0 - 1)
 
     time_col = t_opt.get("column", "time")
     sources = {}
