@@ -960,7 +960,7 @@ def plane_wall_eigenvalues(biot, n_terms=100):
     return roots
 
 
-def plane_wall_response(biot, fourier, position=None, n_terms=200):
+def plane_wall_response(biot, fourier, position=None, n_terms=200, eigenvalues=None):
     r"""
     Exact step response of a plane wall cooled by convection (Fourier series).
 
@@ -975,6 +975,8 @@ def plane_wall_response(biot, fourier, position=None, n_terms=200):
         None for the mean over the thickness.
     n_terms : int
         Terms of the series.
+    eigenvalues : numpy.ndarray, optional
+        Roots from :func:`plane_wall_eigenvalues` for this ``biot``, to reuse them.
 
     Returns
     -------
@@ -992,7 +994,7 @@ def plane_wall_response(biot, fourier, position=None, n_terms=200):
     .. [1] F. P. Incropera et al., Fundamentals of Heat and Mass Transfer, 6th ed., section
        5.5.1, eqs. 5.39a-b (from memory).
     """
-    zeta = plane_wall_eigenvalues(biot, n_terms)
+    zeta = plane_wall_eigenvalues(biot, n_terms) if eigenvalues is None else np.asarray(eigenvalues, float)
     coef = 4 * np.sin(zeta) / (2 * zeta + np.sin(2 * zeta))
     shape = np.sin(zeta) / zeta if position is None else np.cos(zeta * float(position))
     fo = np.atleast_1d(np.asarray(fourier, float))
@@ -1033,9 +1035,10 @@ def lumping_error(biot, n_fourier=400):
     fo = np.unique(np.concatenate([np.geomspace(1e-4, 5.0 / biot, n_fourier),
                                    np.linspace(0.0, 5.0 / biot, n_fourier)[1:]]))
     lumped = np.exp(-biot * fo)
-    mean = plane_wall_response(biot, fo)
-    surface = plane_wall_response(biot, fo, position=1.0)
-    zeta1 = plane_wall_eigenvalues(biot, 1)[0]
+    zeta = plane_wall_eigenvalues(biot, 200)
+    mean = plane_wall_response(biot, fo, eigenvalues=zeta)
+    surface = plane_wall_response(biot, fo, position=1.0, eigenvalues=zeta)
+    zeta1 = zeta[0]
     return {
         "biot": biot,
         "max_error_mean_pct": float(100 * np.max(np.abs(lumped - mean))),

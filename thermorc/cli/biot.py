@@ -61,7 +61,7 @@ def _table(report):
 @guarded
 def biot(
     construction: Annotated[Path, typer.Argument(
-        exists=True, dir_okay=False, help="Construction file (TOML, see docs/constructions.md).",
+        exists=True, dir_okay=False, help="Construction file (TOML, see docs/constructions.md).", rich_help_panel="Inputs",
         show_default=False)],
     out: Annotated[Path, typer.Option(
         "--out", help="Where to write the report (JSON).", rich_help_panel="Output", dir_okay=False)],
