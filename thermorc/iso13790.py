@@ -451,12 +451,13 @@ def plausibility_details(calibrated_ua_w_per_k, calibrated_capacitance_j_per_k, 
         except InputError:
             construction_class = None
         per = cal_class["c_per_floor_area_j_per_m2k"] / 1000.0
+        low, _, high = _class_edges()
         if not cal_class["within_table"]:
             warnings.append(
                 f"calibrated capacitance {calibrated_capacitance_j_per_k / 1e6:.3g} MJ/K is "
-                f"{per:.0f} kJ/(m2 K) of floor area, outside the ISO 13790 Table 12 classes "
-                "(80 to 370 kJ/(m2 K)); the fitted C is likely not physical (too short a log, "
-                "or heat input timing the model cannot follow).")
+                f"{per:.0f} kJ/(m2 K) of floor area, beyond the ISO 13790 Table 12 classes "
+                f"(80 to 370 kJ/(m2 K), span taken as {low / 1000:.0f} to {high / 1000:.0f}); the fitted C is "
+                "likely not physical (too short a log, or heat input timing the model cannot follow).")
         if construction_class is not None:
             names = list(TABLE_12)
             gap = abs(names.index(cal_class["class"]) - names.index(construction_class["class"]))
