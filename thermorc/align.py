@@ -45,7 +45,8 @@ class AlignedData:
     data : pandas.DataFrame
         Uniform tz-aware index with ``freq`` set; NaN where not observed.
     gap_mask : pandas.Series of bool
-        True where any column of ``data`` is not observed (NaN).
+        True where any column of ``data`` is not observed: NaN (a hole longer than
+        ``max_gap_s``) or filled across a short hole (value kept, interpolated or held).
     segments : list of (pandas.Timestamp, pandas.Timestamp)
         First and last stamp of each run of observed rows, in time order.
     step_s : float
@@ -53,7 +54,7 @@ class AlignedData:
     max_gap_s : float
         Longest hole bridged by interpolation [s].
     observed : pandas.DataFrame of bool
-        Per column: True where observed.
+        Per column: True where observed (not NaN and not filled).
     input_step_s : float
         Median spacing of the input [s].
     spikes : dict
@@ -301,12 +302,16 @@ def align(frame, step_s, path=None, *, max_gap_s=None, min_coverage=0.5, remove_
     nxt = np.concatenate([spacing, [input_step_s]])
     dur = np.where(nxt <= max_gap_s, nxt, input_step_s)
     dur = np.minimum(dur, nxt)
+    # Durations a reading really covers (a missing reading or two leaves a hole here).
+    dur_seen = np.minimum(nxt, 1.5 * input_step_s)
     heat = frame["heating_w"].to_numpy(dtype=float) if "heating_w" in frame else None
-    out, spikes, stuck = {}, {}, []
+    out, filled, spikes, stuck = {}, {}, {}, []
     for col in frame.columns:
         v = frame[col].to_numpy(dtype=float)
         if col in INTERVAL_MEAN_COLUMNS:
             out[col], _ = interval_means(t_s, v, dur, edges, min_coverage)
+            _, seen = interval_means(t_s, v, dur_seen, edges, min_coverage)
+            filled[col] = ~np.isnan(out[col]) & (seen < 1.0 - 1e-9)
             continue
         if remove_spikes and col in SPIKE_THRESHOLDS_K:
             v, k = _remove_spikes(t_s, v, SPIKE_THRESHOLDS_K[col])
@@ -320,11 +325,15 @@ def align(frame, step_s, path=None, *, max_gap_s=None, min_coverage=0.5, remove_
                 flags.append(f"{col} stuck at {v[a]:g} from {frame.index[a].isoformat()} for "
                              f"{d / 3600:.1f} h while the heating changed")
         out[col] = instants(t_s, v, grid_s, max_gap_s)
+        filled[col] = ~np.isnan(out[col]) & np.isnan(instants(t_s, v, grid_s, 1.5 * input_step_s))
     data = pd.DataFrame(out, index=index)[list(frame.columns)]
-    observed = data.notna()
+    observed = data.notna() & ~pd.DataFrame(filled, index=index)[list(frame.columns)]
     gap_mask = ~observed.all(axis=1)
     gap_mask.name = "gap"
     segments = _segments(index, gap_mask.to_numpy())
+    n_filled = int((data.notna().all(axis=1) & gap_mask).sum())
+    if n_filled:
+        notes.append(f"{n_filled} grid rows bridged over short holes (values kept, marked in gap_mask)")
     if gap_mask.any():
         notes.append(f"{int(gap_mask.sum())} of {len(gap_mask)} grid rows not observed; "
                      f"{len(segments)} segment(s); holes over {max_gap_s:g} s are never bridged")

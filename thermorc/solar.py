@@ -117,10 +117,10 @@ def decompose(ghi, zenith, index, model="erbs"):
     zen = pd.Series(np.asarray(zenith, dtype=float), index=index)
     mid = midpoints(index)
     if model == "erbs":
-        parts = pvlib.irradiance.erbs(ghi.to_numpy(), zen.to_numpy(), mid.dayofyear.to_numpy())
+        parts = pvlib.irradiance.erbs(ghi.to_numpy(), zen.to_numpy(), mid.day_of_year.to_numpy())
         dni, dhi = np.asarray(parts["dni"]), np.asarray(parts["dhi"])
     elif model == "disc":
-        parts = pvlib.irradiance.disc(ghi.to_numpy(), zen.to_numpy(), mid.dayofyear.to_numpy())
+        parts = pvlib.irradiance.disc(ghi.to_numpy(), zen.to_numpy(), mid.day_of_year.to_numpy())
         dni = np.asarray(parts["dni"])
         dhi = ghi.to_numpy() - dni * np.cos(np.radians(zen.to_numpy()))
     else:
