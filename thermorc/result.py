@@ -321,7 +321,6 @@ class CalibrationResult:
             lines.append(
                 "fit: " + ", ".join(f"{k} {v:.3g}" if isinstance(v, float) else f"{k} {v}" for k, v in self.fit.items())
             )
-        lines += [f"warning: {w}" for w in self.warnings]
         return "\n".join(lines)
 
 

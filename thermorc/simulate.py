@@ -500,6 +500,7 @@ def hold_setpoint(
     x0=None,
     dt_s=None,
     boundary_hold="foh",
+    allow_cooling=False,
 ):
     """
     Heat an ideal heater must deliver to hold a node at a setpoint (heating only).
@@ -530,6 +531,9 @@ def hold_setpoint(
         Step when ``inputs`` has no DatetimeIndex; steps must be uniform. [s]
     boundary_hold : {'foh', 'zoh'}
         Hold for boundary temperatures.
+    allow_cooling : bool
+        Let the "heater" also remove heat (negative power), so the node follows the
+        setpoint exactly; used to compare a model's heat demand with measured heating.
 
     Returns
     -------
@@ -579,7 +583,7 @@ def hold_setpoint(
         x_start = _initial_state(network, space, u[0], x0)
     u_ext = np.vstack([u_free, u_free[-1:]])
     sp_ext = np.concatenate([setpoint, setpoint[-1:]])
-    heat, short = _heater_loop(ad, b0, b1, u_ext, sp_ext, x_start, si, ci, cap)
+    heat, short = _heater_loop(ad, b0, b1, u_ext, sp_ext, x_start, si, ci, cap, -np.inf if allow_cooling else 0.0)
     u_used = u.copy()
     u_used[:, ci] = heat
     frame = inputs.copy() if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u_used, index=index, columns=space.inputs)
@@ -603,7 +607,7 @@ def _setpoint_steady_state(network, space, u_row, setpoint, si, ci, cap):
     return free + need * per_watt
 
 
-def _heater_kernel(ad, drive, bq, sp_next, x, si, gain, cap, heat, short):
+def _heater_kernel(ad, drive, bq, sp_next, x, si, gain, cap, floor, heat, short):
     """Clipped deadbeat heater, step by step; fills ``heat`` and ``short`` in place."""
     n = x.shape[0]
     xn = np.empty(n)
@@ -614,13 +618,13 @@ def _heater_kernel(ad, drive, bq, sp_next, x, si, gain, cap, heat, short):
                 acc += ad[i, j] * x[j]
             xn[i] = acc
         need = (sp_next[k] - xn[si]) / gain
-        q = 0.0
-        if need > 0.0:
-            if need > cap:
-                q = cap
-                short[k] = need - cap
-            else:
-                q = need
+        if need <= floor:
+            q = floor
+        elif need > cap:
+            q = cap
+            short[k] = need - cap
+        else:
+            q = need
         heat[k] = q
         for i in range(n):
             x[i] = xn[i] + bq[i] * q
@@ -634,13 +638,13 @@ except ImportError:  # pragma: no cover - numba is a declared dependency
     pass
 
 
-def _heater_loop(ad, b0, b1, u_ext, sp_ext, x, si, ci, cap):
+def _heater_loop(ad, b0, b1, u_ext, sp_ext, x, si, ci, cap, floor=0.0):
     n_rows = u_ext.shape[0] - 1
     heat = np.zeros(n_rows)
     short = np.zeros(n_rows)
     drive = np.ascontiguousarray(u_ext[:-1] @ b0.T + u_ext[1:] @ b1.T)
     _heater_kernel(
         np.ascontiguousarray(ad), drive, np.ascontiguousarray(b0[:, ci]), np.ascontiguousarray(sp_ext[1:]),
-        np.array(x, dtype=float), int(si), float(b0[si, ci]), float(cap), heat, short,
+        np.array(x, dtype=float), int(si), float(b0[si, ci]), float(cap), float(floor), heat, short,
     )
     return heat, short

@@ -4,3 +4,5 @@
 from thermorc.cli import biot  # noqa: F401
 from thermorc.cli import inspect  # noqa: F401
 from thermorc.cli import demo  # noqa: F401
+from thermorc.cli import calibrate  # noqa: F401
+from thermorc.cli import simulate  # noqa: F401

@@ -1,0 +1,332 @@
+"""
+The chain from files to model inputs: read -> align -> weather and sun on the model grid.
+
+Commands that start from a log (``calibrate``, ``simulate``, ``report``, ``fleet``) all need
+the same steps in the same order; :func:`prepare_log` runs them once and keeps what each
+produced. It adds no algorithm of its own.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from thermorc.align import AlignedData, align, align_weather
+from thermorc.errors import DataQualityWarning, InputError
+from thermorc.read import read_log, read_weather
+
+__all__ = ["PreparedLog", "prepare_log", "parse_site"]
+
+
+@dataclass
+class PreparedLog:
+    """
+    A log on the model grid with weather and irradiance filled in.
+
+    Attributes
+    ----------
+    aligned : AlignedData
+        Output of :func:`thermorc.align.align`, with ``outdoor_c`` and ``ghi_w_m2`` added
+        from the weather file or the clear-sky model where the log has none.
+    metadata : dict
+        The log reader's metadata.
+    weather_metadata : dict or None
+        The weather reader's metadata.
+    site : dict
+        ``latitude``, ``longitude``, ``altitude_m`` where known.
+    notes : list of str
+        Decisions taken on the way (sources of outdoor temperature and irradiance).
+    """
+
+    aligned: AlignedData
+    metadata: dict
+    weather_metadata: dict | None = None
+    site: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)
+
+    @property
+    def data(self):
+        """The aligned table."""
+        return self.aligned.data
+
+
+def parse_site(text):
+    """
+    Read ``"LAT,LON"`` (decimal degrees) from the command line.
+
+    Parameters
+    ----------
+    text : str
+        Latitude and longitude separated by a comma, e.g. ``"36.10,-79.95"``.
+
+    Returns
+    -------
+    dict
+        ``{"latitude": float, "longitude": float}``.
+    """
+    try:
+        lat_s, lon_s = str(text).split(",")
+        lat, lon = float(lat_s), float(lon_s)
+    except ValueError:
+        raise InputError(f"--site is {text!r} (expected LAT,LON in decimal degrees, e.g. 36.10,-79.95)") from None
+    if not (-90 <= lat <= 90 and -180 <= lon <= 180):
+        raise InputError(f"--site {text!r} is off the globe (latitude -90..90, longitude -180..180)")
+    return {"latitude": lat, "longitude": lon}
+
+
+def prepare_log(
+    log_path,
+    column_map=None,
+    tz=None,
+    interval=None,
+    weather_path=None,
+    site=None,
+    step_s=None,
+):
+    """
+    Read a log, put it on a uniform grid, and fill outdoor temperature and irradiance.
+
+    Parameters
+    ----------
+    log_path : str or os.PathLike
+        The log (CSV, Parquet, Excel).
+    column_map : str, os.PathLike or dict, optional
+        Column map for other layouts (docs/data-formats.md).
+    tz : str, optional
+        IANA time zone of naive times.
+    interval : {'start', 'end'}, optional
+        Interval label of the log's powers.
+    weather_path : str or os.PathLike, optional
+        TMY3, EPW or weather CSV; it supplies outdoor temperature and irradiance where the
+        log has none. A typical-year file is coerced to the log's year.
+    site : dict, optional
+        ``latitude`` and ``longitude`` [deg], for the clear-sky fallback; default: the
+        weather file's.
+    step_s : float, optional
+        Model grid step [s]; default: the log's median spacing (at least 60 s).
+
+    Returns
+    -------
+    PreparedLog
+    """
+    data, meta = read_log(log_path, column_map=column_map, tz=tz, interval=interval)
+    if step_s is None:
+        step_s = max(float(meta.get("median_step_s") or 300.0), 60.0)
+    aligned = align(data, float(step_s), path=str(log_path))
+    frame = aligned.data
+    notes = []
+    site = dict(site or {})
+    weather_meta = None
+    need_outdoor = "outdoor_c" not in frame.columns or frame["outdoor_c"].isna().all()
+    need_sun = "ghi_w_m2" not in frame.columns or frame["ghi_w_m2"].isna().all()
+    if weather_path is not None:
+        year = int(frame.index[0].year)
+        weather, weather_meta = read_weather(weather_path, tz=str(frame.index.tz), coerce_year=year)
+        if weather_meta.get("source_format") in ("tmy3", "epw") and frame.index[-1].year != year:
+            # A log across New Year needs the typical year twice.
+            nxt, _ = read_weather(weather_path, tz=str(frame.index.tz), coerce_year=year + 1)
+            weather = pd.concat([weather, nxt]).sort_index()
+            weather = weather[~weather.index.duplicated()]
+        on_grid = align_weather(weather, frame.index, path=str(weather_path))
+        for column in ("outdoor_c", "ghi_w_m2"):
+            if column in on_grid and (column not in frame.columns or frame[column].isna().all()):
+                frame[column] = on_grid[column]
+                notes.append(f"{column} from {weather_meta.get('source_format', 'weather')} file")
+            elif column in on_grid and column in frame.columns:
+                # Fill holes in the log's own reading from the weather file, and say so.
+                holes = frame[column].isna() & on_grid[column].notna()
+                if holes.any():
+                    frame.loc[holes, column] = on_grid.loc[holes, column]
+                    notes.append(f"{int(holes.sum())} missing {column} values filled from the weather file")
+        for key in ("latitude", "longitude", "altitude_m"):
+            if key in weather_meta and key not in site:
+                site[key] = weather_meta[key]
+        notes.extend(weather_meta.get("notes", []))
+    elif need_outdoor:
+        raise InputError(
+            "the log has no outdoor_c column; give a weather file with --weather", path=str(log_path), column="outdoor_c"
+        )
+    if need_sun and weather_path is None:
+        if "latitude" in site and "longitude" in site:
+            from thermorc.solar import clear_sky_ghi
+
+            msg = (
+                "no measured irradiance in the log or a weather file: using pvlib's clear-sky model, which "
+                "overstates the sun on cloudy days (the solar aperture will come out too small)"
+            )
+            warnings.warn(msg, DataQualityWarning, stacklevel=2)
+            frame["ghi_w_m2"] = clear_sky_ghi(frame.index, site["latitude"], site["longitude"], site.get("altitude_m", 0.0)).to_numpy()
+            notes.append(msg)
+        else:
+            notes.append("no irradiance and no site: solar gains are not modelled (give --site LAT,LON or --weather)")
+    aligned.data = frame
+    # The gap mask covers the columns added here too.
+    aligned.gap_mask = frame.isna().any(axis=1)
+    return PreparedLog(aligned=aligned, metadata=meta, weather_metadata=weather_meta, site=site, notes=notes)
+
+
+def file_digest(path):
+    """
+    SHA-256 of a file, for the provenance recorded in result files.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    str
+        Hex digest.
+    """
+    import hashlib
+
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def provenance(**paths):
+    """
+    Version and input hashes for a result file.
+
+    Parameters
+    ----------
+    **paths : str or os.PathLike or None
+        Named input files; ``None`` entries are skipped.
+
+    Returns
+    -------
+    dict
+        ``{"thermorc_version": ..., "inputs": {name: {"file": basename, "sha256": ...}}}``.
+    """
+    import os
+
+    from thermorc import __version__
+
+    inputs = {}
+    for name, path in paths.items():
+        if path is not None:
+            inputs[name] = {"file": os.path.basename(os.fspath(path)), "sha256": file_digest(path)}
+    return {"thermorc_version": __version__, "inputs": inputs}
+
+
+def calibrate_files(
+    log_path,
+    column_map=None,
+    tz=None,
+    interval=None,
+    weather=None,
+    site=None,
+    construction=None,
+    model="auto",
+    gains="constant",
+    step_s=None,
+    progress=False,
+):
+    """
+    Calibrate from files: read, align, add weather and sun, fit, judge against a construction.
+
+    Parameters
+    ----------
+    log_path : str or os.PathLike
+        The log.
+    column_map, tz, interval : optional
+        As for :func:`prepare_log`.
+    weather : str or os.PathLike, optional
+        Weather file (TMY3, EPW, CSV).
+    site : str or dict, optional
+        ``"LAT,LON"`` or a dict with ``latitude`` and ``longitude``.
+    construction : str or os.PathLike, optional
+        Construction TOML (docs/constructions.md): the result reports how the calibrated UA
+        and capacity compare with it.
+    model : {'1R1C', '2R2C', '3R2C', 'auto'}
+        Preset, or ``auto`` to compare all three.
+    gains : {'constant', 'day_night'}
+        Model of unlogged internal gains.
+    step_s : float, optional
+        Model step [s].
+    progress : bool
+        Show a spinner on stderr while fitting.
+
+    Returns
+    -------
+    CalibrationResult
+    """
+    import contextlib
+
+    from thermorc import estimate, quality
+
+    if isinstance(site, str):
+        site = parse_site(site)
+    prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site, step_s=step_s)
+    report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
+    if model != "auto":
+        quality.require_model(report, model, path=str(log_path))
+    data = estimate.calibration_data(prepared.aligned, path=str(log_path))
+    data.notes.extend(prepared.notes)
+    spinner = contextlib.nullcontext()
+    if progress:
+        from rich.console import Console
+
+        spinner = Console(stderr=True).status("fitting the model", spinner="dots")
+    with spinner:
+        if model == "auto":
+            result = estimate.calibrate_auto(data, gains=gains, path=str(log_path))
+        else:
+            result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path))
+    result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
+    result.extras["data_quality"] = {"verdict": report.verdict, "supported": list(report.supported)}
+    if construction is not None:
+        from thermorc.construction import read_construction
+        from thermorc.iso13790 import plausibility_details
+
+        built = read_construction(construction)
+        ua_se = result.std_errors.get("heat_loss_coefficient_w_per_k", float("nan"))
+        details = plausibility_details(result.heat_loss_coefficient_w_per_k, result.capacitance_j_per_k, ua_se, built)
+        result.extras["plausibility"] = details
+        result.warnings.extend(details.get("warnings", []))
+    result.extras["provenance"] = provenance(log=log_path, column_map=column_map, weather=weather, construction=construction)
+    return result
+
+
+def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None, site=None):
+    """
+    Open-loop prediction of a log's indoor temperature from a RESULT.json.
+
+    Parameters
+    ----------
+    result_path : str or os.PathLike
+        RESULT.json from a calibration.
+    log_path : str or os.PathLike
+        Log with measured heating (and weather, or give ``weather``).
+    column_map, tz, weather, site : optional
+        As for :func:`prepare_log`.
+
+    Returns
+    -------
+    frame : pandas.DataFrame
+        Index ``time``; ``indoor_c`` (model) [°C], each node ``<node>_c`` [°C] and the
+        measured ``indoor_measured_c`` [°C].
+    rmse_k : float
+        RMSE of the prediction against the measured indoor temperature. [K]
+    """
+    from thermorc.estimate import predict
+    from thermorc.result import CalibrationResult
+
+    result = CalibrationResult.from_json(result_path)
+    if isinstance(site, str):
+        site = parse_site(site)
+    site = site or ({k: result.site[k] for k in ("latitude", "longitude") if k in result.site} or None)
+    prepared = prepare_log(log_path, column_map=column_map, tz=tz, weather_path=weather, site=site, step_s=result.step_s)
+    frame = prepared.data
+    pred = predict(result, frame)
+    pred["indoor_measured_c"] = frame["indoor_c"]
+    pred.index.name = "time"
+    err = (frame["indoor_c"] - pred["indoor_c"]).dropna()
+    rmse = float(np.sqrt(np.mean(err**2))) if len(err) else float("nan")
+    return pred, rmse
