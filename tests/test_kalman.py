@@ -254,8 +254,8 @@ def test_missing_samples_match_statsmodels_nan_endog(home):
 
 
 def test_steady_state_filter_is_the_limit_of_the_riccati_recursion(home):
-    # Reference: scipy.linalg.solve_discrete_are (inside) against the plain recursion run to
-    # convergence, and statsmodels' own steady-state detection.
+    # References: the plain Riccati recursion run to convergence (Anderson & Moore 1979, ch. 4),
+    # scipy.linalg.solve_discrete_are, and statsmodels' own steady-state detection.
     p_ss, gain, f_ss = steady_state_filter(home["ad"], home["c_row"], home["q_d"], home["r_meas"])
     c = home["c_row"]
     p = np.diag([1.0, 1.0])
@@ -265,6 +265,11 @@ def test_steady_state_filter_is_the_limit_of_the_riccati_recursion(home):
     np.testing.assert_allclose(p_ss, p, rtol=1e-9)
     assert f_ss == pytest.approx(c @ p @ c + home["r_meas"], rel=1e-12)
     np.testing.assert_allclose(gain, p @ c / f_ss, rtol=1e-9)
+    # The compiled doubling iteration against scipy.linalg.solve_discrete_are.
+    p_ref, gain_ref, f_ref = steady_state_filter(home["ad"], c, home["q_d"], home["r_meas"], method="scipy")
+    np.testing.assert_allclose(p_ss, p_ref, rtol=1e-12)
+    np.testing.assert_allclose(gain, gain_ref, rtol=1e-12)
+    assert f_ss == pytest.approx(f_ref, rel=1e-14)
     _, res = statsmodels_loglike(*_args(home))
     assert f_ss == pytest.approx(res.forecasts_error_cov[0, 0, -1], rel=1e-9)
 
@@ -313,3 +318,17 @@ def test_direct_input_row_shifts_the_measurement(home):
     base = kalman_loglike(*_args(home))
     shifted = kalman_loglike(*_args(home, home["y"] + home["u"] @ d_row), d_row=d_row)
     assert shifted.loglike == pytest.approx(base.loglike, rel=1e-12)
+
+
+@pytest.mark.parametrize("tau_h", [0.5, 20.0, 400.0])
+def test_doubling_matches_scipy_dare_over_time_constants(tau_h):
+    # scipy.linalg.solve_discrete_are is the reference, from a fast air node to a slow mass
+    # (time constants 0.5 h to 400 h, common practice for homes) at 5-minute steps.
+    dt = 300.0
+    a = np.array([[-1 / 1800.0, 1 / 1800.0], [1e-6, -1e-6 - 1 / (tau_h * 3600.0)]])
+    ad, q_d = process_noise(a, [1e-5, 1e-8], dt)
+    for r_meas in (1e-4, 0.1):
+        p, gain, f = steady_state_filter(ad, [1.0, 0.0], q_d, r_meas)
+        p_ref = scipy.linalg.solve_discrete_are(ad.T, np.array([[1.0], [0.0]]), q_d, np.array([[r_meas]]))
+        np.testing.assert_allclose(p, p_ref, rtol=1e-12)
+        assert f == pytest.approx(p_ref[0, 0] + r_meas, rel=1e-10)
