@@ -332,3 +332,42 @@ def test_doubling_matches_scipy_dare_over_time_constants(tau_h):
         p_ref = scipy.linalg.solve_discrete_are(ad.T, np.array([[1.0], [0.0]]), q_d, np.array([[r_meas]]))
         np.testing.assert_allclose(p, p_ref, rtol=1e-12)
         assert f == pytest.approx(p_ref[0, 0] + r_meas, rel=1e-10)
+
+
+@pytest.mark.parametrize("preset", ["1R1C", "2R2C", "3R2C"])
+def test_random_presets_match_statsmodels(preset):
+    # statsmodels KalmanFilter as reference over the preset family, with parameters drawn over
+    # ordinary homes (tests/conftest.py, common practice), zero-order hold, 15-minute steps,
+    # random gaps.
+    from conftest import random_preset
+
+    rng = np.random.default_rng({"1R1C": 11, "2R2C": 22, "3R2C": 33}[preset])
+    net = random_preset(preset, rng)
+    space = net.state_space()
+    dt, n_rows = 900.0, 600
+    ad, b0, b1 = discretise(space.a, space.b, dt, "zoh")
+    n = ad.shape[0]
+    _, q_d = process_noise(space.a, rng.uniform(1e-7, 1e-5, n), dt)
+    c_row = np.array([1.0 if s == "indoor" else 0.0 for s in space.states])
+    u = inputs_for(space, n_rows, dt, rng)
+    x0 = np.full(n, 18.0)
+    y = simulate_noisy(ad, b0, b1, c_row, q_d, 0.01, u, x0, rng)
+    y[rng.random(n_rows) < 0.1] = np.nan
+    p0 = np.eye(n)
+    ref, _ = statsmodels_loglike(ad, b0, b1, c_row, q_d, 0.01, y, u, x0, p0)
+    exact = kalman_loglike(ad, b0, b1, c_row, q_d, 0.01, y, u, x0, p0, steady_after=math.inf)
+    fast = kalman_loglike(ad, b0, b1, c_row, q_d, 0.01, y, u, x0, p0)
+    assert exact.loglike == pytest.approx(ref, rel=1e-8)
+    assert abs(fast.loglike - ref) < 1e-6 * abs(ref)
+
+
+def test_all_samples_missing_is_pure_prediction(home):
+    # With no data the likelihood is empty (ln L = 0) and the predicted states follow the
+    # noise-free state equation (analytic: E[x_{k+1}] = A_d E[x_k] + B_0 u_k + B_1 u_{k+1}).
+    y = np.full(len(home["y"]), np.nan)
+    out = kalman_loglike(*_args(home, y))
+    assert out.loglike == 0.0 and out.n_used == 0
+    x = home["x0"].copy()
+    for k in range(5):
+        np.testing.assert_allclose(out.predicted_states[k], x, rtol=1e-12)
+        x = home["ad"] @ x + home["b0"] @ home["u"][k] + home["b1"] @ home["u"][k + 1]
