@@ -255,3 +255,33 @@ def test_given_weather_with_facade_columns_is_used_as_is():
     # mean indoor-outdoor difference, within the heat the structure gives up or takes.
     ua = truth["heat_loss_coefficient_w_per_k"]
     assert log["heating_w"].mean() == pytest.approx(ua * log["indoor_c"].mean(), rel=0.05)
+
+
+def test_demo_files_are_what_their_script_writes(tmp_path):
+    # The bundled demo data must come from weather_demo/make_demo_data.py with its fixed seeds.
+    import importlib.util
+    from pathlib import Path
+    import json
+
+    here = Path(__file__).resolve().parent.parent / "weather_demo"
+    spec = importlib.util.spec_from_file_location("make_demo_data", here / "make_demo_data.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    truth = module.make(tmp_path)
+    assert (tmp_path / "weather.csv").read_text() == (here / "weather.csv").read_text()
+    shipped = json.loads((here / "truth.json").read_text())
+    assert truth["heat_loss_coefficient_w_per_k"] == pytest.approx(shipped["heat_loss_coefficient_w_per_k"], rel=1e-9)
+    assert truth["time_constant_relevant_h"] == pytest.approx(shipped["time_constant_relevant_h"], rel=1e-6)
+    new = pd.read_csv(tmp_path / "log.csv")
+    old = pd.read_csv(here / "log.csv")
+    assert list(new.columns) == ["time", "indoor_c", "heating_w", "outdoor_c", "ghi_w_m2", "setpoint_c"]
+    assert len(new) == len(old) == 59 * 288
+    # Equal up to last-digit rounding flips that a different BLAS could cause.
+    assert (new["indoor_c"] == old["indoor_c"]).mean() > 0.99
+    assert new["heating_w"].sum() == pytest.approx(old["heating_w"].sum(), rel=1e-3)
+    # The construction file follows docs/constructions.md: thermorc reads it.
+    from thermorc.construction import construction_ua, read_construction
+
+    ua = construction_ua(read_construction(here / "construction.toml"))["ua_w_per_k"]
+    # ISO 6946 with R_se under the floor instead of soil: a little above the fine model.
+    assert shipped["heat_loss_coefficient_w_per_k"] < ua < 1.15 * shipped["heat_loss_coefficient_w_per_k"]
