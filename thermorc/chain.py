@@ -120,6 +120,7 @@ def prepare_log(
     notes = []
     site = dict(site or {})
     weather_meta = None
+    weather_on_grid = None
     need_outdoor = "outdoor_c" not in frame.columns or frame["outdoor_c"].isna().all()
     need_sun = "ghi_w_m2" not in frame.columns or frame["ghi_w_m2"].isna().all()
     if weather_path is not None:
@@ -131,6 +132,7 @@ def prepare_log(
             weather = pd.concat([weather, nxt]).sort_index()
             weather = weather[~weather.index.duplicated()]
         on_grid = align_weather(weather, frame.index, path=str(weather_path))
+        weather_on_grid = on_grid
         for column in ("outdoor_c", "ghi_w_m2"):
             if column in on_grid and (column not in frame.columns or frame[column].isna().all()):
                 frame[column] = on_grid[column]
@@ -162,10 +164,51 @@ def prepare_log(
             notes.append(msg)
         else:
             notes.append("no irradiance and no site: solar gains are not modelled (give --site LAT,LON or --weather)")
+    if "ghi_w_m2" in frame.columns and frame["ghi_w_m2"].notna().any() and "latitude" in site and "longitude" in site:
+        frame["poa_s_w_m2"] = south_facade_irradiance(frame, site, weather_on_grid)
+        notes.append("solar gains follow the irradiance on a south-facing wall (pvlib transposition)")
     aligned.data = frame
     # The gap mask covers the columns added here too.
     aligned.gap_mask = frame.isna().any(axis=1)
     return PreparedLog(aligned=aligned, metadata=meta, weather_metadata=weather_meta, site=site, notes=notes)
+
+
+def south_facade_irradiance(frame, site, weather=None):
+    """
+    Irradiance on a south-facing vertical wall, the solar input of calibrated models.
+
+    Windows of homes are vertical, and in the heating season the sun is low, so the
+    irradiance on a south wall follows window gains far better than the horizontal
+    irradiance does (ISO 13790:2008, clause 11.3, computes solar gains per orientation; from
+    memory). Where beam and diffuse parts are not given, GHI is split by the Erbs
+    correlation.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        ``ghi_w_m2`` [W m⁻²] on a tz-aware, interval-start index.
+    site : dict
+        ``latitude``, ``longitude`` [deg] and optionally ``altitude_m`` [m].
+    weather : pandas.DataFrame, optional
+        ``dni_w_m2`` and ``dhi_w_m2`` [W m⁻²] on the same index, when a weather file gave them.
+
+    Returns
+    -------
+    numpy.ndarray
+        South-façade plane-of-array irradiance. [W m⁻²]
+    """
+    from thermorc.solar import facade_irradiance
+
+    source = frame[["ghi_w_m2"]].copy()
+    if weather is not None and {"dni_w_m2", "dhi_w_m2"} <= set(weather.columns):
+        source["dni_w_m2"] = weather["dni_w_m2"].to_numpy()
+        source["dhi_w_m2"] = weather["dhi_w_m2"].to_numpy()
+        if source[["dni_w_m2", "dhi_w_m2"]].isna().any().any():
+            source = source[["ghi_w_m2"]]
+    ghi_ok = source["ghi_w_m2"].notna()
+    filled = source.fillna(0.0)
+    poa = facade_irradiance(filled, site["latitude"], site["longitude"], site.get("altitude_m", 0.0) or 0.0)
+    return np.where(ghi_ok, poa["poa_s_w_m2"].to_numpy(), np.nan)
 
 
 def file_digest(path):
@@ -267,7 +310,8 @@ def calibrate_files(
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
         quality.require_model(report, model, path=str(log_path))
-    data = estimate.calibration_data(prepared.aligned, path=str(log_path))
+    solar = "poa_s_w_m2" if "poa_s_w_m2" in prepared.data.columns else "ghi_w_m2"
+    data = estimate.calibration_data(prepared.aligned, solar_column=solar, path=str(log_path))
     data.notes.extend(prepared.notes)
     spinner = contextlib.nullcontext()
     if progress:

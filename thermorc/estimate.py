@@ -74,6 +74,7 @@ C_BOUNDS_J_PER_K = (1e4, 1e10)
 APERTURE_BOUNDS_M2 = (1e-3, 200.0)
 GAINS_BOUNDS_W = (-20000.0, 20000.0)
 STATE_BOUNDS_C = (-50.0, 60.0)
+BLOCK_S = 3600.0
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -108,6 +109,7 @@ class CalibrationData:
     step_s: float
     has_solar: bool = True
     notes: list = field(default_factory=list)
+    solar_column: str = "ghi_w_m2"
 
     @property
     def n_observed(self):
@@ -121,7 +123,9 @@ class CalibrationData:
             if s.start < stop:
                 segs.append(slice(s.start, min(s.stop, stop)))
         segs = [s for s in segs if s.stop - s.start >= 12]
-        return CalibrationData(self.index[:stop], self.y[:stop], self.u[:stop], segs, self.step_s, self.has_solar, list(self.notes))
+        return CalibrationData(
+            self.index[:stop], self.y[:stop], self.u[:stop], segs, self.step_s, self.has_solar, list(self.notes), self.solar_column
+        )
 
 
 def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_steps=12, path=None):
@@ -197,7 +201,7 @@ def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_step
     if not segments:
         raise InputError("no run of complete data long enough to calibrate (need indoor, heating and outdoor together)", path=path)
     u = np.where(np.isfinite(u), u, 0.0)
-    return CalibrationData(frame.index, y, u, segments, float(step_s), has_solar, notes)
+    return CalibrationData(frame.index, y, u, segments, float(step_s), has_solar, notes, solar_column)
 
 
 # -- start values from the data -----------------------------------------------------------
@@ -463,7 +467,22 @@ def _start_values(model, data, previous=None):
     return [{**start, **c} for c in candidates]
 
 
-def _fit_output_error(model, data, gains, previous=None, max_nfev=400):
+def _blocks(data, observed, block):
+    """Group observed rows of each segment into consecutive blocks of ``block`` rows."""
+    block_id = np.full(len(data.y), -1)
+    n_blocks = 0
+    for seg in data.segments:
+        rows = np.arange(seg.start, seg.stop)
+        ids = (rows - seg.start) // block
+        for b in np.unique(ids):
+            members = rows[(ids == b) & observed[rows]]
+            if members.size * 2 >= block:
+                block_id[members] = n_blocks
+                n_blocks += 1
+    return block_id, n_blocks
+
+
+def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1):
     """Least squares on the open-loop indoor temperature; returns the best of a few starts."""
     best = None
     tried = []
@@ -475,13 +494,19 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400):
         for s in data.segments:
             observed[s] = np.isfinite(data.y[s])
 
+        block_id, n_blocks = _blocks(data, observed, block)
+
         def residuals(theta):
             try:
                 yhat, _ = _simulate_indoor(layout, theta, data)
             except NetworkError:
-                return np.full(int(observed.sum()), 1e3)
-            r = data.y[observed] - yhat[observed]
-            return np.where(np.isfinite(r), r, 1e3)
+                return np.full(n_blocks, 1e3)
+            used = block_id >= 0
+            r = data.y[used] - yhat[used]
+            sums = np.bincount(block_id[used], weights=r, minlength=n_blocks)
+            counts = np.bincount(block_id[used], minlength=n_blocks)
+            out = sums / counts
+            return np.where(np.isfinite(out), out, 1e3)
 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -579,7 +604,8 @@ def calibrate(
     data = log if isinstance(log, CalibrationData) else calibration_data(log, step_s=step_s, path=path)
     _check_identifiable(data, model, path)
     started = _time.perf_counter()
-    layout, sol, observed, tried = _fit_output_error(model, data, gains, previous)
+    block = max(1, int(round(BLOCK_S / data.step_s)))
+    layout, sol, observed, tried = _fit_output_error(model, data, gains, previous, block=block)
     theta = sol.x
     resid = sol.fun
     n = int(observed.sum())
@@ -694,6 +720,7 @@ def calibrate(
         covariance=covariance if covariance["matrix"] is not None else None,
         gains_schedule={"kind": "day_night", "day_start_h": 7, "night_start_h": 23} if gains == "day_night" else {"kind": "constant"},
         step_s=data.step_s,
+        solar_input=data.solar_column,
         extras={
             "energy_fit": energy,
             "diagnostics": {
@@ -809,6 +836,13 @@ def predict(result: CalibrationResult, log, x0=None):
     inputs["solar_w_m2"] = solar if np.isscalar(solar) else solar.fillna(0.0)
     logged = frame["internal_gains_w"].fillna(0.0) if "internal_gains_w" in frame.columns else 0.0
     inputs["internal_w"] = result.internal_gains_w(frame.index) + logged
+    fitted = result.extras.get("estimator", {}).get("initial_states", {})
+    same_start = result.extras.get("data", {}).get("start") == frame.index[0].isoformat()
+    if x0 is None and same_start and "indoor_c" in frame.columns and np.isfinite(frame["indoor_c"].iloc[0]):
+        # The calibration estimated the hidden nodes' temperatures at this very stamp.
+        hidden = [fitted.get(f"x0_{node}_segment0") for node in net.state_space().states[1:]]
+        if all(v is not None for v in hidden):
+            x0 = np.array([frame["indoor_c"].iloc[0], *hidden])
     if x0 is None:
         x0 = steady_state(net, inputs.iloc[0][list(net.inputs)].to_numpy())
         if "indoor_c" in frame.columns and np.isfinite(frame["indoor_c"]).any():
