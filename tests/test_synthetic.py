@@ -21,6 +21,7 @@ from thermorc.synthetic import (
     FACADES,
     ElementSpec,
     LayerSpec,
+    Occupancy,
     PRESET_HOMES,
     Thermostat,
     add_element,
@@ -247,8 +248,8 @@ def test_given_weather_with_facade_columns_is_used_as_is():
     idx = pd.date_range("2024-01-01", periods=24 * 4, freq="h", tz="UTC")
     weather = pd.DataFrame({"outdoor_c": 0.0, "ghi_w_m2": 0.0, "poa_n_w_m2": 0.0, "poa_e_w_m2": 0.0,
                             "poa_s_w_m2": 0.0, "poa_w_w_m2": 0.0}, index=idx)
-    spec = fine_home("leaky", occupancy=fine_home("leaky").occupancy.__class__(
-        base_w=0.0, morning_w=0.0, evening_w=0.0, weekend_day_w=0.0, cooking_w=0.0))
+    spec = fine_home("leaky", occupancy=Occupancy(base_w=0.0, morning_w=0.0, evening_w=0.0, weekend_day_w=0.0,
+                                                  cooking_w=0.0))
     log, truth = simulate_home(spec, weather, days=2, warmup_days=1)
     assert truth["weather"] == "given" and truth["internal_gains_mean_w"] == 0.0
     # No sun, no gains, constant 0 degC: the mean heating over whole days is UA times the

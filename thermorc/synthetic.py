@@ -66,6 +66,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 import pvlib
+import scipy.signal
 
 from thermorc.construction import R_SE_M2K_PER_W, R_SI_M2K_PER_W, RHO_C_AIR_J_PER_M3K, load_materials
 from thermorc.errors import InputError
@@ -357,13 +358,7 @@ class Occupancy:
             on = happens[day] & (hour >= start[day]) & (hour < start[day] + lasting[day])
             q += np.where(on, self.cooking_w, 0.0)
         step_s = (index[1] - index[0]).total_seconds() if n > 1 else 3600.0
-        phi = math.exp(-step_s / 1800.0)
-        eps = rng.normal(0.0, self.noise * math.sqrt(1 - phi**2), n)
-        ar = np.empty(n)
-        acc = 0.0
-        for k in range(n):  # a short AR(1); vectorising it is not worth the obscurity
-            acc = phi * acc + eps[k]
-            ar[k] = acc
+        ar = _ar1(rng, n, step_s, 1800.0, self.noise)
         return np.maximum(q * (1.0 + ar), 0.0)
 
 
@@ -943,11 +938,10 @@ CLIMATES = {
 
 
 def _ar1(rng, n, step_s, corr_s, sd):
+    """Stationary AR(1) samples with correlation time ``corr_s`` and standard deviation ``sd``."""
     phi = math.exp(-step_s / corr_s)
     eps = rng.normal(0.0, sd * math.sqrt(1.0 - phi**2), n)
     eps[0] = rng.normal(0.0, sd)
-    import scipy.signal  # local: only the weather needs it
-
     return scipy.signal.lfilter([1.0], [1.0, -phi], eps)
 
 
