@@ -40,6 +40,9 @@ __all__ = [
     "DEFAULT_DEADBAND_K",
     "model_inputs",
     "run_heater",
+    "step_rise_k",
+    "thermostat_caution",
+    "warm_start",
     "thermostat",
     "forecast",
     "design_loads",
@@ -305,8 +308,42 @@ def thermostat(network, inputs, setpoint_c, capacity_w, deadband_k=DEFAULT_DEADB
     return sim, on, int(cycles)
 
 
+def step_rise_k(network, capacity_w, step_s, node="indoor", channel=HEATING):
+    """
+    Rise of the controlled node over one step at full heater output (other inputs zero).
+
+    Parameters
+    ----------
+    network : Network
+    capacity_w : float
+        Heater output. [W]
+    step_s : float
+        Model step. [s]
+    node, channel : str
+        Controlled node and heater channel.
+
+    Returns
+    -------
+    float
+        Temperature rise. [K]
+    """
+    space = network.state_space()
+    _, b0, _ = _step_matrices(space, step_s)
+    return float(capacity_w * b0[list(space.states).index(node), list(space.inputs).index(channel)])
+
+
+def thermostat_caution(network, capacity_w, step_s, deadband_k):
+    """A caution when one step at full output moves the indoor node by more than the deadband."""
+    rise = step_rise_k(network, capacity_w, step_s)
+    if rise <= deadband_k:
+        return None
+    return (f"At full output the indoor temperature moves {rise:.2f} K in one {step_s:g} s step, more than the "
+            f"{deadband_k:g} K deadband, so the sampled thermostat overshoots its band; use a shorter step "
+            "(e.g. --step-s 60) for cycle counts and comfort figures.")
+
+
 def run_heater(network, inputs, setpoint_c, heater="ideal", capacity_w=None, deadband_k=DEFAULT_DEADBAND_K,
-               warmup=True):
+               warmup=True, x0=None):
     """
     Run one heater through the inputs, starting from a warmed-up state.
 
@@ -326,6 +363,8 @@ def run_heater(network, inputs, setpoint_c, heater="ideal", capacity_w=None, dea
     warmup : bool
         When the inputs span a whole year (a typical year wraps), start from the state the
         last weeks of the year leave, not from a steady state.
+    x0 : array_like, optional
+        Start state [°C]; when given, no warm-up is run.
 
     Returns
     -------
@@ -335,19 +374,46 @@ def run_heater(network, inputs, setpoint_c, heater="ideal", capacity_w=None, dea
     """
     heater = _check_heater(heater, capacity_w)
     sp = np.asarray(setpoint_c, dtype=float)
-    x0 = None
-    warmed = False
-    span_days = (inputs.index[-1] - inputs.index[0]).total_seconds() / 86400.0
-    if warmup and span_days >= 360:
-        tau_h = float(network.time_constants_s()[0] / 3600.0)
-        # Three slow time constants leave under 5 % of the start state (exp(-3)); 7 to 60 days.
-        days = min(60.0, max(7.0, 3.0 * tau_h / 24.0))
-        rows = min(len(inputs) - 1, int(days * 86400.0 / _step_of(inputs)))
-        tail = inputs.iloc[-rows:]
-        x0 = _run(network, tail, sp[-rows:], heater, capacity_w, deadband_k, None)[0].final_state_c
-        warmed = True
+    warmed = x0 is not None
+    if x0 is None and warmup:
+        x0 = warm_start(network, inputs, sp, heater, capacity_w, deadband_k)
+        warmed = x0 is not None
     sim, on, cycles = _run(network, inputs, sp, heater, capacity_w, deadband_k, x0)
     return sim, {"heater_on": on, "cycles": cycles, "warmed_up": warmed}
+
+
+def warm_start(network, inputs, setpoint_c, heater="ideal", capacity_w=None, deadband_k=DEFAULT_DEADBAND_K):
+    """
+    Start state of a whole-year run: the state the last weeks of the year leave.
+
+    A typical year wraps (31 December is followed by 1 January), so running the heater through
+    the last three slow time constants of the year (7 to 60 days) gives the state at the
+    first stamp, under 5 % (exp(-3)) of the arbitrary steady start left.
+
+    Parameters
+    ----------
+    network : Network
+    inputs : pandas.DataFrame
+        From :func:`model_inputs`.
+    setpoint_c : array_like, shape (N,)
+        Setpoint at each stamp. [°C]
+    heater, capacity_w, deadband_k
+        As for :func:`run_heater`.
+
+    Returns
+    -------
+    numpy.ndarray or None
+        Capacitive-node temperatures [°C], or ``None`` when the inputs span less than 360 days.
+    """
+    heater = _check_heater(heater, capacity_w)
+    span_days = (inputs.index[-1] - inputs.index[0]).total_seconds() / 86400.0
+    if span_days < 360:
+        return None
+    sp = np.asarray(setpoint_c, dtype=float)
+    tau_h = float(network.time_constants_s()[0] / 3600.0)
+    days = min(60.0, max(7.0, 3.0 * tau_h / 24.0))
+    rows = min(len(inputs) - 1, int(days * 86400.0 / _step_of(inputs)))
+    return _run(network, inputs.iloc[-rows:], sp[-rows:], heater, capacity_w, deadband_k, None)[0].final_state_c
 
 
 def _step_of(frame):
@@ -700,6 +766,9 @@ def forecast(result, weather, setpoint=20.0, heater=None, capacity_w=None, deadb
     })
     summary["monte_carlo"] = None
     cautions = [CAUTIONS["design"], CAUTIONS["design_gains"]]
+    if heater == "thermostat":
+        note = thermostat_caution(network, capacity_w, step, deadband_k)
+        cautions += [note] if note else []
     if n_draws:
         try:
             draws = result.parameter_draws(int(n_draws), seed=seed)
