@@ -680,7 +680,8 @@ def _percentiles(values):
 
 
 def forecast(result, weather, setpoint=20.0, heater=None, capacity_w=None, deadband_k=DEFAULT_DEADBAND_K,
-             step_s=300.0, tolerance_k=UNMET_TOLERANCE_K, n_draws=0, seed=0, tz=None, metadata=None):
+             step_s=300.0, tolerance_k=UNMET_TOLERANCE_K, n_draws=0, seed=0, tz=None, metadata=None,
+             progress=None):
     """
     Heating demand of a calibrated home under a weather file.
 
@@ -711,6 +712,8 @@ def forecast(result, weather, setpoint=20.0, heater=None, capacity_w=None, deadb
         standard time for TMY3/EPW).
     metadata : dict, optional
         Weather metadata from ``read_weather`` (name, source format) for the summary.
+    progress : callable, optional
+        ``progress(iterable, total)`` wraps the Monte Carlo loop (e.g. a progress bar).
 
     Returns
     -------
@@ -775,6 +778,8 @@ def forecast(result, weather, setpoint=20.0, heater=None, capacity_w=None, deadb
         except ValueError:
             cautions.append("No Monte Carlo percentiles: the calibration result has no usable parameter covariance.")
         else:
+            if progress is not None:
+                draws = progress(draws, len(draws))
             summary["monte_carlo"] = _monte_carlo(result, draws, inputs, sp, heater, capacity_w, deadband_k,
                                                   step, design_sp, weather, int(seed))
     if (metadata or {}).get("source_format") in ("tmy3", "epw"):
@@ -809,7 +814,7 @@ def _monte_carlo(result, draws, inputs, sp, heater, capacity_w, deadband_k, step
         ua = net.heat_loss_coefficient_w_per_k("indoor")["total"]
         design.append(design_loads(ua, design_sp, weather)["load_99_6_w"])
     return {
-        "n_draws": len(draws),
+        "n_draws": len(energy),
         "seed": seed,
         "heating_kwh": _percentiles(energy),
         "peak_hourly_heating_w": _percentiles(peak),

@@ -6,3 +6,5 @@ from thermorc.cli import inspect  # noqa: F401
 from thermorc.cli import demo  # noqa: F401
 from thermorc.cli import calibrate  # noqa: F401
 from thermorc.cli import simulate  # noqa: F401
+from thermorc.cli import forecast  # noqa: F401
+from thermorc.cli import setback  # noqa: F401
