@@ -48,6 +48,7 @@ __all__ = [
     "design_loads",
     "degree_hour_check",
     "energy_by_month",
+    "hourly_means",
     "comfort_metrics",
     "CAUTIONS",
 ]
@@ -623,6 +624,28 @@ def frame_of(sim, inputs, setpoint, extra=None):
     return pd.DataFrame(data, index=inputs.index)
 
 
+def hourly_means(heating_w, step_s):
+    """
+    Hourly means of a per-step power series (whole hours only).
+
+    Parameters
+    ----------
+    heating_w : array_like
+        Mean power over each step. [W]
+    step_s : float
+        Step, dividing one hour. [s]
+
+    Returns
+    -------
+    numpy.ndarray
+        Mean power over each whole hour. [W]
+    """
+    heat = np.asarray(heating_w, dtype=float)
+    per_hour = int(round(3600.0 / step_s))
+    hourly = heat[: heat.size // per_hour * per_hour].reshape(-1, per_hour).mean(axis=1)
+    return hourly if hourly.size else heat
+
+
 def run_summary(frame, step_s, occupied, tolerance_k=UNMET_TOLERANCE_K):
     """
     Energy, peak and comfort figures of one run.
@@ -643,14 +666,13 @@ def run_summary(frame, step_s, occupied, tolerance_k=UNMET_TOLERANCE_K):
     dict
     """
     heat = frame["heating_w"]
-    per_hour = int(round(3600.0 / step_s))
-    hourly = heat.to_numpy()[: len(heat) // per_hour * per_hour].reshape(-1, per_hour).mean(axis=1)
+    hourly = hourly_means(heat, step_s)
     occ = np.asarray(occupied, dtype=bool)
     indoor = frame["indoor_c"].to_numpy()
     out = {
         "heating_kwh": float(heat.sum() * step_s / 3.6e6),
         "peak_heating_w": float(heat.max()),
-        "peak_hourly_heating_w": float(hourly.max()) if hourly.size else float(heat.max()),
+        "peak_hourly_heating_w": float(hourly.max()),
         "peak_time": heat.idxmax().isoformat(),
         **comfort_metrics(indoor, frame["setpoint_c"], step_s, tolerance_k),
         "unmet_tolerance_k": float(tolerance_k),
@@ -807,10 +829,8 @@ def _monte_carlo(result, draws, inputs, sp, heater, capacity_w, deadband_k, step
         frame_in = inputs.assign(**{INTERNAL: result.internal_gains_w(inputs.index, params).to_numpy()})
         sim, _ = run_heater(net, frame_in, sp, heater, capacity_w, deadband_k)
         heat = sim.inputs[HEATING].to_numpy()
-        per_hour = int(round(3600.0 / step))
-        hourly = heat[: heat.size // per_hour * per_hour].reshape(-1, per_hour).mean(axis=1)
         energy.append(heat.sum() * step / 3.6e6)
-        peak.append(hourly.max())
+        peak.append(hourly_means(heat, step).max())
         ua = net.heat_loss_coefficient_w_per_k("indoor")["total"]
         design.append(design_loads(ua, design_sp, weather)["load_99_6_w"])
     return {

@@ -44,6 +44,7 @@ from thermorc.forecast import (
     _step_matrices,
     comfort_metrics,
     energy_by_month,
+    hourly_means,
     model_inputs,
     run_heater,
     safety_cautions,
@@ -505,8 +506,7 @@ def _run_strategy(strategy, network, inputs, clock, heater, capacity_w, deadband
     heat = sim.inputs[HEATING].to_numpy()
     indoor = sim.temperatures_c["indoor"].to_numpy()
     hours, peaks, never = _recovery(indoor, comfort, events, events - leads, heat, step, tolerance_k)
-    per_hour = int(round(3600.0 / step))
-    hourly = heat[: heat.size // per_hour * per_hour].reshape(-1, per_hour).mean(axis=1)
+    hourly = hourly_means(heat, step)
     row = {
         "heating_kwh": float(heat.sum() * step / 3.6e6),
         "peak_heating_w": float(heat.max()),
