@@ -195,3 +195,23 @@ def test_strategies_file_and_bad_input(tmp_path):
 def test_optimal_start_needs_a_capacity(greensboro):
     with pytest.raises(InputError, match="capacity-limited"):
         compare(typical_home(), greensboro.iloc[:48], strategies({"name": "o", "week": NIGHT, "optimal_start": True}))
+
+
+def test_thermostat_follows_the_optimal_start_control():
+    # A 1R1C on/off thermostat (60 s sampling) with optimal start: leads come from the capacity
+    # pass, the thermostat follows them; each morning's recovery needs at least one on-cycle,
+    # and starting early keeps the home within the tolerance at the occupied time (analytic
+    # first-order response, as in the closed-form test above).
+    result = CalibrationResult(model="1R1C", parameters=dict(r_indoor_outdoor_k_per_w=1 / 200.0,
+                                                             c_indoor_j_per_k=200.0 * 20 * 3600))
+    idx = pd.date_range("2025-01-06 12:00", periods=24 * 3, freq="h", tz="UTC", name="time")
+    weather = pd.DataFrame({"outdoor_c": 0.0, "ghi_w_m2": 0.0}, index=idx)
+    c = compare(result, weather, strategies({"name": "optimal", "week": NIGHT, "optimal_start": True,
+                                             "max_lead_h": 12}), heater="thermostat", capacity_w=6000.0,
+                step_s=60, keep_frames=True)
+    row = c.table.loc["optimal"]
+    assert row["cycles"] >= row["occupied_starts"] == 3
+    f = c.frames["optimal"]
+    at_six = f.loc[f.index.hour.isin([6]) & (f.index.minute == 0)]
+    assert (at_six["indoor_c"] >= at_six["setpoint_c"] - 0.5).all()
+    assert c.settings["heater"] == "thermostat"

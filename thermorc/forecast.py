@@ -334,7 +334,24 @@ def step_rise_k(network, capacity_w, step_s, node="indoor", channel=HEATING):
 
 
 def thermostat_caution(network, capacity_w, step_s, deadband_k):
-    """A caution when one step at full output moves the indoor node by more than the deadband."""
+    """
+    A caution when one step at full output moves the indoor node by more than the deadband.
+
+    Parameters
+    ----------
+    network : Network
+    capacity_w : float
+        Heater output. [W]
+    step_s : float
+        Model step. [s]
+    deadband_k : float
+        Thermostat switching differential. [K]
+
+    Returns
+    -------
+    str or None
+        The caution, or ``None`` when the step is short enough.
+    """
     rise = step_rise_k(network, capacity_w, step_s)
     if rise <= deadband_k:
         return None
@@ -606,7 +623,25 @@ def _rises(setpoint):
 
 
 def frame_of(sim, inputs, setpoint, extra=None):
-    """The per-interval output frame of a run (see :class:`ForecastResult`)."""
+    """
+    The per-interval output frame of a run.
+
+    Parameters
+    ----------
+    sim : SimulationResult
+        From :func:`run_heater`.
+    inputs : pandas.DataFrame
+        The model inputs of the run.
+    setpoint : array_like
+        Setpoint at each stamp. [°C]
+    extra : dict, optional
+        From :func:`run_heater` (adds ``heater_on`` for the thermostat).
+
+    Returns
+    -------
+    pandas.DataFrame
+        The columns of :attr:`ForecastResult.frame`, plus ``outdoor_mean_c`` (interval mean). [°C, W, W m⁻²]
+    """
     heat = sim.inputs[HEATING].to_numpy()
     data = {
         "indoor_c": sim.temperatures_c["indoor"].to_numpy(),
@@ -686,7 +721,24 @@ def run_summary(frame, step_s, occupied, tolerance_k=UNMET_TOLERANCE_K):
 
 
 def safety_cautions(summary, occupied_setpoint_c):
-    """The WHO 18 degC and 10 degC pipe cautions that a run's temperatures call for."""
+    """
+    The WHO 18 degC and 10 degC pipe cautions that a run's temperatures call for.
+
+    Parameters
+    ----------
+    summary : dict
+        With ``min_indoor_c`` and ``min_occupied_indoor_c`` (or None). [°C]
+    occupied_setpoint_c : float
+        The occupied setpoint; below 18 degC it calls for the WHO caution by itself. [°C]
+
+    Returns
+    -------
+    list of str
+
+    References
+    ----------
+    .. [1] World Health Organization, WHO Housing and Health Guidelines, Geneva, 2018 (18 degC).
+    """
     out = []
     occ_min = summary.get("min_occupied_indoor_c")
     if (occ_min is not None and occ_min < WHO_MIN_INDOOR_C - 1e-9) or occupied_setpoint_c < WHO_MIN_INDOOR_C:

@@ -135,6 +135,8 @@ class SetbackComparison:
     frames : dict
         Strategy name -> per-interval frame (``indoor_c``, ``setpoint_c`` (comfort),
         ``control_c``, ``heating_w``).
+    settings : dict
+        ``heater``, ``capacity_w`` [W], ``deadband_k`` [K], ``step_s`` [s], ``tolerance_k`` [K] used.
     """
 
     table: pd.DataFrame
@@ -142,10 +144,12 @@ class SetbackComparison:
     details: dict
     cautions: list = field(default_factory=list)
     frames: dict = field(default_factory=dict)
+    settings: dict = field(default_factory=dict)
 
     def to_dict(self):
         """Everything but the frames, as plain types (for JSON)."""
         return {
+            "settings": dict(self.settings),
             "strategies": self.table.reset_index().to_dict(orient="records"),
             "monthly_kwh": {c: self.monthly_kwh[c].to_dict() for c in self.monthly_kwh.columns},
             "details": self.details,
@@ -440,7 +444,13 @@ def optimal_start_leads(network, inputs, comfort_c, occupied, capacity_w, max_le
     -----
     The heater is the clipped deadbeat heater of :func:`thermorc.simulate.hold_setpoint`: each
     interval it aims at the control setpoint of the stamp that ends it. See the module
-    docstring for the backwards construction of the full-output response.
+    docstring for the backwards construction of the full-output response, the superposition of
+    the zero-input and forced responses of the exact discrete-time model [1]_.
+
+    References
+    ----------
+    .. [1] G. F. Franklin, J. D. Powell and M. L. Workman, Digital Control of Dynamic Systems,
+       3rd ed. Addison-Wesley, 1998, ch. 4 (solution of the discrete state equation).
     """
     if capacity_w is None:
         raise InputError("optimal start needs a heater capacity (give capacity_w)", column="capacity_w")
@@ -631,4 +641,7 @@ def compare(result, weather, strategies, heater=None, capacity_w=None, deadband_
                 cautions.append(c)
                 seen.add(c)
     cautions += [f"Calibration warning: {w}" for w in result.warnings]
-    return SetbackComparison(table=table, monthly_kwh=monthly, details=details, cautions=cautions, frames=frames)
+    settings = {"heater": heater, "capacity_w": capacity_w, "deadband_k": deadband_k if heater == "thermostat" else None,
+                "step_s": step, "tolerance_k": float(tolerance_k)}
+    return SetbackComparison(table=table, monthly_kwh=monthly, details=details, cautions=cautions, frames=frames,
+                             settings=settings)

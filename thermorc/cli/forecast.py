@@ -37,7 +37,7 @@ def _num(x, spec=",.0f"):
     return "-" if x is None else format(x, spec)
 
 
-def summary_text(s):
+def _summary_text(s):
     """Plain-text summary of a forecast summary dict (for people)."""
     w = s.get("weather") or {}
     heater = s["heater"] + (f", {s['capacity_w']:,.0f} W" if s.get("capacity_w") else "")
@@ -148,5 +148,5 @@ def forecast(
     if as_json:
         typer.echo(json.dumps(_clean_for_json(body), indent=2, allow_nan=False, default=str))
         return
-    out_console.print(summary_text(found.summary), markup=False)
+    out_console.print(_summary_text(found.summary), markup=False)
     out_console.print(f"\nWrote {out}" + (f" and {summary}" if summary is not None else ""), markup=False)

@@ -27,9 +27,10 @@ def _cell(value, spec):
     return format(value, spec)
 
 
-def comparison_text(comparison, heater, capacity_w):
+def _comparison_text(comparison):
     """Plain-text comparison table and cautions (for people)."""
     t = comparison.table
+    heater, capacity_w = comparison.settings["heater"], comparison.settings["capacity_w"]
     head = (f"{'strategy':<28} {'kWh':>8} {'saved %':>7} {'peak rec. W':>11} {'unmet h':>8} {'K h':>7} "
             f"{'min C':>6} {'min occ C':>9} {'rec. h':>6} {'max h':>6} {'lead h':>6}")
     lines = [f"Heater {heater}" + (f", {capacity_w:,.0f} W" if capacity_w else ""), head, "-" * len(head)]
@@ -106,8 +107,7 @@ def setback(
     if as_json:
         typer.echo(json.dumps(_clean_for_json(body), indent=2, allow_nan=False, default=str))
         return
-    used_heater = heater.value if heater else (plan.heater or ("capacity" if (capacity_w or plan.capacity_w) else "ideal"))
-    out_console.print(comparison_text(found, used_heater, capacity_w or plan.capacity_w), markup=False)
+    out_console.print(_comparison_text(found), markup=False)
     written = [str(p) for p in (out, summary) if p is not None]
     if written:
         out_console.print(f"\nWrote {' and '.join(written)}", markup=False)
