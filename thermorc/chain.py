@@ -18,7 +18,11 @@ from thermorc.align import AlignedData, align, align_weather
 from thermorc.errors import DataQualityWarning, InputError
 from thermorc.read import read_log, read_weather
 
-__all__ = ["PreparedLog", "prepare_log", "parse_site"]
+__all__ = ["PreparedLog", "prepare_log", "parse_site", "calibrate_files", "simulate_files", "vertical_irradiance"]
+
+#: Solar input of calibrated models when the site is known: the sum of the irradiance on the
+#: four vertical façades. [W m⁻²]
+SOLAR_COLUMN = "solar_vertical_w_m2"
 
 
 @dataclass
@@ -165,22 +169,23 @@ def prepare_log(
         else:
             notes.append("no irradiance and no site: solar gains are not modelled (give --site LAT,LON or --weather)")
     if "ghi_w_m2" in frame.columns and frame["ghi_w_m2"].notna().any() and "latitude" in site and "longitude" in site:
-        frame["poa_s_w_m2"] = south_facade_irradiance(frame, site, weather_on_grid)
-        notes.append("solar gains follow the irradiance on a south-facing wall (pvlib transposition)")
+        frame[SOLAR_COLUMN] = vertical_irradiance(frame, site, weather_on_grid)
+        notes.append("solar gains follow the irradiance on the four vertical façades (pvlib transposition)")
     aligned.data = frame
     # The gap mask covers the columns added here too.
     aligned.gap_mask = frame.isna().any(axis=1)
     return PreparedLog(aligned=aligned, metadata=meta, weather_metadata=weather_meta, site=site, notes=notes)
 
 
-def south_facade_irradiance(frame, site, weather=None):
+def vertical_irradiance(frame, site, weather=None):
     """
-    Irradiance on a south-facing vertical wall, the solar input of calibrated models.
+    Sum of the irradiance on vertical walls facing N, E, S and W: the solar input of models.
 
-    Windows of homes are vertical, and in the heating season the sun is low, so the
-    irradiance on a south wall follows window gains far better than the horizontal
-    irradiance does (ISO 13790:2008, clause 11.3, computes solar gains per orientation; from
-    memory). Where beam and diffuse parts are not given, GHI is split by the Erbs
+    Windows of homes are vertical, and in the heating season the sun is low, so irradiance
+    on vertical façades follows window gains far better than the horizontal irradiance does
+    (ISO 13790:2008, clause 11.3, computes solar gains per orientation; from memory). The
+    calibrated aperture multiplies the sum of the four façades, so it does not assume where
+    the windows are. Where beam and diffuse parts are not given, GHI is split by the Erbs
     correlation.
 
     Parameters
@@ -195,7 +200,7 @@ def south_facade_irradiance(frame, site, weather=None):
     Returns
     -------
     numpy.ndarray
-        South-façade plane-of-array irradiance. [W m⁻²]
+        Sum of the plane-of-array irradiance of the four façades. [W m⁻²]
     """
     from thermorc.solar import facade_irradiance
 
@@ -208,7 +213,8 @@ def south_facade_irradiance(frame, site, weather=None):
     ghi_ok = source["ghi_w_m2"].notna()
     filled = source.fillna(0.0)
     poa = facade_irradiance(filled, site["latitude"], site["longitude"], site.get("altitude_m", 0.0) or 0.0)
-    return np.where(ghi_ok, poa["poa_s_w_m2"].to_numpy(), np.nan)
+    total = poa[["poa_n_w_m2", "poa_e_w_m2", "poa_s_w_m2", "poa_w_w_m2"]].sum(axis=1).to_numpy()
+    return np.where(ghi_ok, total, np.nan)
 
 
 def file_digest(path):
@@ -310,7 +316,7 @@ def calibrate_files(
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
         quality.require_model(report, model, path=str(log_path))
-    solar = "poa_s_w_m2" if "poa_s_w_m2" in prepared.data.columns else "ghi_w_m2"
+    solar = SOLAR_COLUMN if SOLAR_COLUMN in prepared.data.columns else "ghi_w_m2"
     data = estimate.calibration_data(prepared.aligned, solar_column=solar, path=str(log_path))
     data.notes.extend(prepared.notes)
     spinner = contextlib.nullcontext()

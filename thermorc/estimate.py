@@ -72,9 +72,10 @@ Z95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(
 R_BOUNDS_K_PER_W = (1e-6, 10.0)
 C_BOUNDS_J_PER_K = (1e4, 1e10)
 APERTURE_BOUNDS_M2 = (1e-3, 200.0)
-GAINS_BOUNDS_W = (-20000.0, 20000.0)
+GAINS_BOUNDS_W = (0.0, 20000.0)
 STATE_BOUNDS_C = (-50.0, 60.0)
 BLOCK_S = 3600.0
+FIT_SOLAR_SHARE = True
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -328,6 +329,9 @@ class _Layout:
             self.params.append(_Param(name, True, lo, hi, start[name]))
         if data.has_solar:
             self.params.append(_Param("solar_aperture_m2", True, *APERTURE_BOUNDS_M2, start["solar_aperture_m2"]))
+            if model != "1R1C" and FIT_SOLAR_SHARE:
+                # Sun lands on floors and furniture as much as on the air: let the data split it.
+                self.params.append(_Param("solar_to_envelope_share", False, 0.0, 1.0, start.get("solar_to_envelope_share", 0.3)))
         if gains == "day_night":
             self.params.append(_Param("internal_gains_day_w", False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
             self.params.append(_Param("internal_gains_night_w", False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
@@ -376,6 +380,8 @@ class _Layout:
         v = self.values(theta)
         p = {k: v[k] for k in PRESETS[self.model].parameters}
         p["solar_aperture_m2"] = v.get("solar_aperture_m2", 0.0)
+        if "solar_to_envelope_share" in v:
+            p["solar_to_envelope_share"] = v["solar_to_envelope_share"]
         return Network.from_preset(self.model, p)
 
     def gains_series(self, theta, rows=slice(None)):
@@ -423,7 +429,7 @@ def _start_values(model, data, previous=None):
         "internal_gains_w": balance["gains_w"],
     }
     if previous is not None:
-        start.update({k: v for k, v in previous.items() if k in ("solar_aperture_m2", "internal_gains_w")})
+        start.update({k: v for k, v in previous.items() if k in ("solar_aperture_m2", "internal_gains_w", "solar_to_envelope_share")})
         if "internal_gains_day_w" in previous:
             start["internal_gains_w"] = 0.5 * (previous["internal_gains_day_w"] + previous["internal_gains_night_w"])
         ua = previous.get("_ua", ua)
@@ -520,6 +526,108 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1):
     return layout, sol, observed, tried
 
 
+# Noise parameters of the prediction-error estimator: continuous-time process-noise standard
+# deviation per state [K s^-1/2] and measurement-noise standard deviation [K]. The measurement
+# floor is the rounding of a 0.1 degC display, 0.1/sqrt(12) (uniform quantisation; common
+# practice).
+PROCESS_NOISE_BOUNDS = (1e-7, 1e-1)
+MEASUREMENT_NOISE_BOUNDS = (0.1 / math.sqrt(12) * 0.5, 2.0)
+
+
+def _ml_objective(layout: _Layout, data: CalibrationData):
+    """Negative log-likelihood of (physical theta, log noise) from the Kalman filter."""
+    from thermorc.kalman import kalman_loglike, process_noise
+    from thermorc.simulate import discretise
+
+    n_phys = layout.n_physical
+    n_states = len(layout._states())
+    foh = np.zeros(4, dtype=bool)
+    foh[0] = True
+
+    def negloglike(vector):
+        theta = np.concatenate([vector[:n_phys], layout.start_theta()[n_phys:]])
+        sig = np.exp(vector[n_phys:n_phys + n_states])
+        r_meas = math.exp(2 * vector[-1])
+        try:
+            space = layout.network(theta).state_space()
+        except NetworkError:
+            return 1e12
+        ad, b0z, _ = discretise(space.a, space.b, data.step_s, "zoh")
+        _, b0f, b1f = discretise(space.a, space.b, data.step_s, "foh")
+        b0 = np.where(foh[None, :], b0f, b0z)
+        b1 = np.where(foh[None, :], b1f, 0.0)
+        _, q_d = process_noise(space.a, sig**2, data.step_s)
+        gains = layout.gains_series(theta)
+        c_row = np.zeros(n_states)
+        c_row[0] = 1.0
+        total = 0.0
+        for seg in data.segments:
+            u = data.u[seg].copy()
+            u[:, 3] += gains[seg]
+            y = data.y[seg]
+            first = y[np.isfinite(y)][0]
+            x0 = np.full(n_states, first)
+            if n_states > 1:
+                x0[1:] = 0.5 * (first + u[0, 0])
+            p0 = np.diag([0.25] + [25.0] * (n_states - 1))
+            try:
+                out = kalman_loglike(ad, b0, b1, c_row, q_d, r_meas, y, u, x0, p0)
+            except InputError:  # a trial step so extreme that the matrices overflow
+                return 1e12
+            if not np.isfinite(out.loglike):
+                return 1e12
+            total += out.loglike
+        return -total
+
+    return negloglike
+
+
+def _fit_prediction_error(layout: _Layout, theta_start, data: CalibrationData, max_iter=300):
+    """Maximum likelihood of the stochastic model, started from an output-error fit."""
+    n_phys = layout.n_physical
+    n_states = len(layout._states())
+    objective = _ml_objective(layout, data)
+    lower, upper = layout.bounds()
+    noise_lo = [math.log(PROCESS_NOISE_BOUNDS[0])] * n_states + [math.log(MEASUREMENT_NOISE_BOUNDS[0])]
+    noise_hi = [math.log(PROCESS_NOISE_BOUNDS[1])] * n_states + [math.log(MEASUREMENT_NOISE_BOUNDS[1])]
+    bounds = list(zip(np.r_[lower[:n_phys], noise_lo], np.r_[upper[:n_phys], noise_hi]))
+    start = np.r_[theta_start[:n_phys], [math.log(1e-4)] * n_states, [math.log(0.05)]]
+    start = np.clip(start, [b[0] + 1e-9 for b in bounds], [b[1] - 1e-9 for b in bounds])
+    # The objective is scaled by the sample count so the optimiser's tolerances mean the same
+    # for a week or a year of data.
+    scale = max(data.n_observed, 1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        sol = scipy.optimize.minimize(
+            lambda v: objective(v) / scale, start, method="L-BFGS-B", bounds=bounds,
+            options={"maxiter": max_iter, "ftol": 1e-12, "gtol": 1e-7},
+        )
+    return sol, objective, bounds
+
+
+def _hessian(func, x, step=1e-4):
+    """Central-difference Hessian of a scalar function."""
+    k = len(x)
+    h = np.full(k, step)
+    hess = np.empty((k, k))
+    f0 = func(x)
+    for i in range(k):
+        for j in range(i, k):
+            if i == j:
+                up, dn = x.copy(), x.copy()
+                up[i] += h[i]
+                dn[i] -= h[i]
+                hess[i, i] = (func(up) - 2 * f0 + func(dn)) / h[i] ** 2
+            else:
+                pp, pm, mp, mm = x.copy(), x.copy(), x.copy(), x.copy()
+                pp[i] += h[i]; pp[j] += h[j]
+                pm[i] += h[i]; pm[j] -= h[j]
+                mp[i] -= h[i]; mp[j] += h[j]
+                mm[i] -= h[i]; mm[j] -= h[j]
+                hess[i, j] = hess[j, i] = (func(pp) - func(pm) - func(mp) + func(mm)) / (4 * h[i] * h[j])
+    return hess
+
+
 def _derived(layout: _Layout, theta):
     """Heat loss coefficient, time constants and total capacitance for a parameter vector."""
     net = layout.network(theta)
@@ -571,8 +679,9 @@ def calibrate(
         Preset to fit.
     gains : {'constant', 'day_night'}
         Model of the unlogged internal gains (day is 07:00-23:00 local time).
-    method : {'output_error'}
-        Estimator.
+    method : {'output_error', 'prediction_error'}
+        Estimator: least squares on the open-loop indoor temperature, or maximum likelihood of
+        the stochastic model with a Kalman filter (started from the output-error fit).
     step_s : float, optional
         Grid step [s]; default from the index.
     path : str, optional
@@ -599,36 +708,75 @@ def calibrate(
         raise InputError(f"unknown model '{model}' (expected one of {', '.join(PRESETS)} or auto)")
     if gains not in ("constant", "day_night"):
         raise InputError(f"gains is {gains!r} (expected 'constant' or 'day_night')")
-    if method != "output_error":
-        raise InputError(f"method is {method!r} (expected 'output_error')")
+    if method not in ("output_error", "prediction_error"):
+        raise InputError(f"method is {method!r} (expected 'output_error' or 'prediction_error')")
     data = log if isinstance(log, CalibrationData) else calibration_data(log, step_s=step_s, path=path)
     _check_identifiable(data, model, path)
     started = _time.perf_counter()
     block = max(1, int(round(BLOCK_S / data.step_s)))
     layout, sol, observed, tried = _fit_output_error(model, data, gains, previous, block=block)
     theta = sol.x
-    resid = sol.fun
     n = int(observed.sum())
     k = len(theta)
     lower, upper = layout.bounds()
-    # A parameter pinned at a bound is not estimated: leave it out of the covariance (its
-    # Jacobian column would make the information matrix singular) and say so.
     span = upper - lower
-    at_bound = (theta - lower < 1e-6 * span) | (upper - theta < 1e-6 * span)
-    free = np.flatnonzero(~at_bound)
-    cov = np.full((k, k), np.nan)
-    sub_cov, bandwidth = diagnose.hac_covariance(sol.jac[:, free], resid)
-    cov[np.ix_(free, free)] = sub_cov
     notes = []
+    noise = {}
+    if method == "output_error":
+        # A parameter pinned at a bound is not estimated: leave it out of the covariance (its
+        # Jacobian column would make the information matrix singular) and say so.
+        at_bound = (theta - lower < 1e-6 * span) | (upper - theta < 1e-6 * span)
+        free = np.flatnonzero(~at_bound)
+        cov = np.full((k, k), np.nan)
+        sub_cov, bandwidth = diagnose.hac_covariance(sol.jac[:, free], sol.fun)
+        cov[np.ix_(free, free)] = sub_cov
+        cov_note = f"Newey-West HAC on hourly residual blocks, bandwidth {bandwidth}"
+        success, message, nfev = bool(sol.success), str(sol.message), int(sol.nfev)
+    else:
+        ml, objective, bounds = _fit_prediction_error(layout, theta, data)
+        n_phys = layout.n_physical
+        theta = np.concatenate([ml.x[:n_phys], theta[n_phys:]])
+        vec_lo = np.array([b[0] for b in bounds])
+        vec_hi = np.array([b[1] for b in bounds])
+        vspan = vec_hi - vec_lo
+        at_bound = (ml.x - vec_lo < 1e-6 * vspan) | (vec_hi - ml.x < 1e-6 * vspan)
+        free = np.flatnonzero(~at_bound)
+        # Innovations are close to white, so the inverse Hessian of -ln L is the covariance
+        # (Kristensen et al. 2004); parameters at a bound are held fixed.
+        def restricted(v):
+            full = ml.x.copy()
+            full[free] = v
+            return objective(full)
+
+        hess = _hessian(restricted, ml.x[free])
+        try:
+            inv = np.linalg.inv(hess)
+            if not np.all(np.isfinite(inv)) or np.any(np.diag(inv) < 0):
+                raise np.linalg.LinAlgError
+        except np.linalg.LinAlgError:
+            inv = np.full((free.size, free.size), np.nan)
+        full_cov = np.full((len(ml.x), len(ml.x)), np.nan)
+        full_cov[np.ix_(free, free)] = inv
+        cov = np.full((k, k), np.nan)
+        cov[:n_phys, :n_phys] = full_cov[:n_phys, :n_phys]
+        sub_cov = cov[np.ix_(free[free < n_phys], free[free < n_phys])]
+        n_states = len(layout._states())
+        noise = {
+            "process_noise_k_per_sqrt_s": [math.exp(v) for v in ml.x[n_phys:n_phys + n_states]],
+            "measurement_noise_k": math.exp(ml.x[-1]),
+            "loglike": -float(ml.fun) * max(data.n_observed, 1),
+        }
+        cov_note = "inverse Hessian of the Kalman-filter log-likelihood"
+        success, message, nfev = bool(ml.success), str(ml.message), int(ml.nfev) + int(sol.nfev)
     if not np.all(np.isfinite(sub_cov)):
-        notes.append("the parameter covariance could not be computed (singular Jacobian)")
+        notes.append("the parameter covariance could not be computed (singular information matrix)")
     physical = layout.physical(theta)
     net = layout.network(theta)
     derived, se_log = _delta_method(layout, theta, np.nan_to_num(cov)) if np.all(np.isfinite(sub_cov)) else (_derived(layout, theta), {})
     yhat, states = _simulate_indoor(layout, theta, data)
     result_warnings = []
-    if not sol.success:
-        result_warnings.append(f"the optimiser stopped without converging ({sol.message}); tried {len(tried)} starts")
+    if not success:
+        result_warnings.append(f"the optimiser stopped without converging ({message}); tried {len(tried)} starts")
         warnings.warn(result_warnings[-1], ConvergenceWarning, stacklevel=2)
     std_errors, intervals = {}, {}
     se_theta = np.sqrt(np.clip(np.diag(cov), 0, None))
@@ -672,8 +820,8 @@ def calibrate(
         "n_params": k,
         "cv_rmse_pct": math.nan,
         "nmbe_pct": math.nan,
-        "estimator": "output_error",
-        "covariance": f"Newey-West HAC, bandwidth {bandwidth}",
+        "estimator": method,
+        "covariance": cov_note,
     }
     energy = {}
     if energy_metrics:
@@ -728,12 +876,13 @@ def calibrate(
                 "correlation": {"names": names, "matrix": np.where(np.isfinite(corr), corr, np.nan).tolist()},
             },
             "estimator": {
-                "method": "output_error",
-                "solver": "scipy.optimize.least_squares (trf)",
-                "status": int(sol.status),
-                "message": str(sol.message),
-                "success": bool(sol.success),
-                "nfev": int(sol.nfev),
+                "method": method,
+                "solver": "scipy.optimize.least_squares (trf)" + (
+                    "" if method == "output_error" else ", then scipy.optimize.minimize (L-BFGS-B) on the Kalman likelihood"),
+                "message": message,
+                "success": success,
+                "nfev": nfev,
+                "noise": noise,
                 "starts": tried,
                 "seconds": _time.perf_counter() - started,
                 "initial_states": {n_: v for n_, v in layout.values(theta).items() if n_.startswith("x0_")},
@@ -967,18 +1116,13 @@ def _holdout_rmse(result, data: CalibrationData, cut):
     if cut >= len(data.y) - 12:
         return math.nan
     frame = pd.DataFrame(
-        {"outdoor_c": data.u[:, 0], "heating_w": data.u[:, 1], "ghi_w_m2": data.u[:, 2],
+        {"outdoor_c": data.u[:, 0], "heating_w": data.u[:, 1], data.solar_column: data.u[:, 2],
          "internal_gains_w": data.u[:, 3], "indoor_c": data.y},
         index=data.index,
     )
-    # Continue the training simulation into the tail: it carries the hidden node's state.
+    # The fit's own initial states start the run, so the tail continues the training simulation.
     pred = predict(result, frame)["indoor_c"].to_numpy()
-    seg_fit = result._modelled.to_numpy()
-    offset = 0.0
-    last = np.flatnonzero(np.isfinite(seg_fit))
-    if last.size:
-        offset = seg_fit[last[-1]] - pred[last[-1]]
     tail = slice(cut, len(data.y))
-    err = data.y[tail] - (pred[tail] + offset)
+    err = data.y[tail] - pred[tail]
     err = err[np.isfinite(err)]
     return float(np.sqrt(np.mean(err**2))) if err.size else math.nan
