@@ -8,3 +8,4 @@ from thermorc.cli import calibrate  # noqa: F401
 from thermorc.cli import simulate  # noqa: F401
 from thermorc.cli import forecast  # noqa: F401
 from thermorc.cli import setback  # noqa: F401
+from thermorc.cli import fleet  # noqa: F401

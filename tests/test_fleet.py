@@ -1,0 +1,318 @@
+"""Fleets: manifests, per-home isolation, resume, the summary, and a Dask cluster against the local pool.
+
+The homes are invented: 2R2C presets (thermorc.network) driven by an ideal heater holding a
+setback schedule (thermorc.simulate.hold_setpoint) under smooth invented weather, with
+sensor noise and 0.1 degC rounding. Their true UA is the series sum of the two resistances,
+UA = 1 / (R_ie + R_eo) (the steady state of resistances in series; any heat-transfer
+textbook, e.g. Incropera et al., Fundamentals of Heat and Mass Transfer, 7th ed., sec. 3.1).
+"""
+
+import math
+import os
+import warnings
+
+import numpy as np
+import pandas as pd
+import pyarrow.dataset as ds
+import pyarrow.parquet as pq
+import pytest
+from typer.testing import CliRunner
+
+from thermorc.chain import calibrate_files
+from thermorc.cli import app
+from thermorc.errors import InputError
+from thermorc.fleet import (
+    RESULT_COLUMNS,
+    calibrate_home,
+    journal_path,
+    read_manifest,
+    run_fleet,
+    summary_path,
+)
+from thermorc.network import Network
+from thermorc.simulate import hold_setpoint
+
+runner = CliRunner()
+SITE = "45,-90"
+DAYS = 10
+STEP_S = 900.0
+
+
+def simulate_log(seed, days=DAYS, step_s=STEP_S, start="2024-01-08"):
+    """An invented home's log (canonical columns on a tz-aware index) and its true UA [W/K]."""
+    rng = np.random.default_rng(seed)
+    ua = rng.uniform(120, 300)
+    c_total = rng.uniform(1.5e7, 4e7)
+    share = rng.uniform(0.1, 0.3)
+    r_eo = 1 / ua * rng.uniform(0.8, 0.9)
+    r_ie = 1 / ua - r_eo
+    net = Network.from_preset(
+        "2R2C", r_indoor_envelope_k_per_w=r_ie, r_envelope_outdoor_k_per_w=r_eo, c_indoor_j_per_k=c_total * share,
+        c_envelope_j_per_k=c_total * (1 - share), solar_aperture_m2=rng.uniform(1, 4),
+    )
+    n = int(days * 86400 / step_s)
+    index = pd.date_range(start, periods=n, freq=pd.Timedelta(seconds=step_s), tz="America/Chicago", name="time")
+    t_h = np.arange(n) * step_s / 3600
+    outdoor = rng.uniform(-6, 4) + 5 * np.sin(2 * np.pi * (t_h - 15) / 24) + np.cumsum(rng.normal(0, 0.08, n))
+    ghi = np.clip(450 * np.sin(2 * np.pi * (t_h - 6) / 24), 0, None) * rng.uniform(0.4, 1.0)
+    inputs = pd.DataFrame({"outdoor_c": outdoor, "heating_w": 0.0, "solar_w_m2": ghi, "internal_w": 250.0}, index=index)
+    setpoint = np.where((index.hour >= 6) & (index.hour < 22), 21.0, 16.0)
+    run = hold_setpoint(net, inputs, setpoint, capacity_w=ua * 45)
+    log = pd.DataFrame({
+        "indoor_c": np.round(run.temperatures_c["indoor"].to_numpy() + rng.normal(0, 0.07, n), 1),
+        "heating_w": np.round(run.inputs["heating_w"].to_numpy(), 0),
+        "outdoor_c": np.round(outdoor, 1),
+        "ghi_w_m2": np.round(ghi, 0),
+    }, index=index)
+    return log, 1 / (r_ie + r_eo)
+
+
+def write_csv_log(log, path):
+    """The canonical CSV log: ISO 8601 times with their UTC offset (docs/data-formats.md)."""
+    out = log.copy()
+    out.index = pd.Index([t.isoformat() for t in out.index], name="time")
+    out.to_csv(path)
+
+
+@pytest.fixture(scope="module")
+def fleet_dir(tmp_path_factory):
+    """Four good homes (three CSV logs, one in a hive-partitioned Parquet dataset) and one bad one."""
+    root = tmp_path_factory.mktemp("fleet")
+    (root / "logs").mkdir()
+    truth = {}
+    for i in range(1, 4):
+        log, truth[f"h{i}"] = simulate_log(i)
+        write_csv_log(log, root / "logs" / f"h{i}.csv")
+    # h4 lives in a dataset partitioned by home_id, as fleets are usually stored.
+    log4, truth["h4"] = simulate_log(4)
+    frame = log4.reset_index()
+    frame["home_id"] = "h4"
+    other, _ = simulate_log(9)
+    other = other.reset_index()
+    other["home_id"] = "x9"
+    table = pd.concat([frame, other], ignore_index=True)
+    import pyarrow as pa
+
+    ds.write_dataset(pa.Table.from_pandas(table, preserve_index=False), root / "dataset", format="parquet",
+                     partitioning=["home_id"], partitioning_flavor="hive")
+    # The bad home: a cell that is not a number, on line 40 of the file as an editor counts.
+    bad, _ = simulate_log(5)
+    write_csv_log(bad, root / "logs" / "bad.csv")
+    lines = (root / "logs" / "bad.csv").read_text().splitlines()
+    cells = lines[39].split(",")
+    cells[1] = "n/a?"
+    lines[39] = ",".join(cells)
+    (root / "logs" / "bad.csv").write_text("\n".join(lines) + "\n")
+    (root / "homes.csv").write_text(
+        "id,log,partition,site,floor_area_m2\n"
+        f"h1,logs/h1.csv,,\"{SITE}\",120\n"
+        f"h2,logs/h2.csv,,\"{SITE}\",95.5\n"
+        f"bad,logs/bad.csv,,\"{SITE}\",100\n"
+        f"h3,logs/h3.csv,,\"{SITE}\",\n"
+        f"h4,dataset,home_id=h4,\"{SITE}\",150\n"
+    )
+    return root, truth
+
+
+@pytest.fixture(scope="module")
+def local_run(fleet_dir, tmp_path_factory):
+    root, _ = fleet_dir
+    out = tmp_path_factory.mktemp("out") / "RESULTS.parquet"
+    run = run_fleet(root / "homes.csv", out, workers=2, model="2R2C", batch_size=2)
+    return run, pd.read_parquet(out)
+
+
+def test_manifest_csv_rows_and_paths(fleet_dir):
+    root, _ = fleet_dir
+    homes = read_manifest(root / "homes.csv")
+    assert [h.home_id for h in homes] == ["h1", "h2", "bad", "h3", "h4"]
+    assert [h.row for h in homes] == [2, 3, 4, 5, 6]  # header = row 1
+    assert homes[0].log == str(root / "logs" / "h1.csv")
+    assert homes[3].floor_area_m2 is None and homes[1].floor_area_m2 == 95.5
+    assert homes[4].partition == {"home_id": "h4"} and homes[4].log == str(root / "dataset")
+
+
+@pytest.mark.parametrize("body, where", [
+    ("id,log,floor_area_m2\nh1,a.csv,120\nh2,b.csv,12 m2\n", "homes.csv, row 3, column 'floor_area_m2'"),
+    ("id,log,floor_area_m2\nh1,a.csv,120\nh2,b.csv,0.5\n", "homes.csv, row 3, column 'floor_area_m2'"),
+    ("id,log\nh1,a.csv\n\nh1,b.csv\n", "homes.csv, row 4, column 'id'"),
+    ("id,log,site\nh1,a.csv,\"45,-300\"\n", "homes.csv, row 2, column 'site'"),
+    ("id,log\nh1,\n", "homes.csv, row 2, column 'log'"),
+    ("id,log,site\nh1,a.csv,45,-90\n", "homes.csv, row 2"),
+    ("id,log,colour\nh1,a.csv,red\n", "homes.csv, row 1, column 'colour'"),
+    ("id,log,partition\nh1,d,home_id\n", "homes.csv, row 2, column 'partition'"),
+    ("id,log,tz\nh1,a.csv,Mars/Olympus\n", "homes.csv, row 2, column 'tz'"),
+])
+def test_manifest_csv_errors_name_row_and_column(tmp_path, body, where):
+    path = tmp_path / "homes.csv"
+    path.write_text(body)
+    with pytest.raises(InputError) as info:
+        read_manifest(path)
+    assert str(info.value).startswith(where + ": ")
+
+
+def test_manifest_toml_defaults_filters_and_rows(tmp_path):
+    path = tmp_path / "homes.toml"
+    path.write_text(
+        '[defaults]\nsite = "45,-90"\nlog = "data/logs.parquet"\n\n'
+        '[[home]]\nid = "a"\npartition = "home_id=1"\nfloor_area_m2 = 80\n\n'
+        '[[home]]\nid = "b"\nfilters = {home_id = 2}\n\n'
+        '[[home]]\nid = "c"\nlog = "c.csv"\nsite = "45,-90"\n'
+    )
+    homes = read_manifest(path)
+    assert [h.row for h in homes] == [5, 10, 14]
+    assert homes[0].partition == {"home_id": "1"} and homes[1].partition == {"home_id": "2"}
+    assert homes[1].log == str(tmp_path / "data" / "logs.parquet") and homes[2].log == str(tmp_path / "c.csv")
+    path.write_text('[[home]]\nid = "a"\nlog = "a.csv"\n\n[[home]]\nid = "b"\nlog = "b.csv"\nfloor_area_m2 = "big"\n')
+    with pytest.raises(InputError) as info:
+        read_manifest(path)
+    assert str(info.value).startswith("homes.toml, row 8, column 'floor_area_m2': ")
+
+
+def test_bad_home_is_one_error_row_and_the_rest_go_on(local_run):
+    run, frame = local_run
+    assert list(frame.columns) == [name for name, _ in RESULT_COLUMNS]
+    assert frame["home_id"].tolist() == ["h1", "h2", "bad", "h3", "h4"]  # manifest order
+    bad = frame.set_index("home_id").loc["bad"]
+    assert bad["status"] == "error"
+    # The reader's own message: the file, the editor's line number and the column.
+    assert bad["error"].startswith("bad.csv, row 40, column 'indoor_c':") and "\n" not in bad["error"]
+    assert math.isnan(bad["ua_w_per_k"])
+    good = frame[frame["home_id"] != "bad"]
+    assert (good["status"] == "ok").all() and good["error"].isna().all()
+    assert run.n_errors == 1 and run.n_run == 5 and run.n_skipped == 0
+
+
+def test_rows_match_the_single_home_chain_and_the_truth(fleet_dir, local_run):
+    root, truth = fleet_dir
+    _, frame = local_run
+    rows = frame.set_index("home_id")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        single = calibrate_files(root / "logs" / "h1.csv", site=SITE, model="2R2C")
+    assert rows.loc["h1", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
+    assert rows.loc["h1", "tau1_h"] == pytest.approx(single.time_constants_h[0], rel=1e-9)
+    assert rows.loc["h1", "cv_rmse_pct"] == pytest.approx(single.fit["cv_rmse_pct"], rel=1e-9)
+    assert rows.loc["h1", "log_sha256"] == single.extras["provenance"]["inputs"]["log"]["sha256"]
+    for home in ("h1", "h2", "h3", "h4"):
+        # Series resistances (module docstring); 15 % covers ten days of noisy data.
+        assert rows.loc[home, "ua_w_per_k"] == pytest.approx(truth[home], rel=0.15), home
+        assert rows.loc[home, "model"] == "2R2C" and rows.loc[home, "tau1_h"] > rows.loc[home, "tau2_h"]
+    assert rows.loc["h1", "ua_per_floor_area_w_per_m2k"] == pytest.approx(rows.loc["h1", "ua_w_per_k"] / 120)
+    assert math.isnan(rows.loc["h3", "ua_per_floor_area_w_per_m2k"])  # no floor area given
+    assert (frame["seconds"] > 0).all() and frame["thermorc_version"].notna().all()
+
+
+def test_summary_matches_numpy_on_the_rows(local_run):
+    run, frame = local_run
+    summary = pd.read_csv(run.summary_csv).set_index("quantity")
+    ok = frame[frame["status"] == "ok"]
+    for name in ("ua_w_per_k", "ua_per_floor_area_w_per_m2k", "tau1_h", "cv_rmse_pct"):
+        v = ok[name].dropna().to_numpy()
+        # numpy.percentile, linear interpolation (Hyndman and Fan 1996, definition 7)
+        assert summary.loc[name, "count"] == len(v)
+        assert summary.loc[name, "p10"] == pytest.approx(np.percentile(v, 10), rel=1e-5)
+        assert summary.loc[name, "p50"] == pytest.approx(np.median(v), rel=1e-5)
+        assert summary.loc[name, "p90"] == pytest.approx(np.percentile(v, 90), rel=1e-5)
+        assert summary.loc[name, "mean"] == pytest.approx(v.mean(), rel=1e-5)
+    assert summary.loc["ua_per_floor_area_w_per_m2k", "count"] == 3
+    assert summary.loc["homes", "count"] == 5 and summary.loc["homes_error", "count"] == 1
+    assert summary.loc["homes_ok", "count"] == 4
+    assert summary.loc["homes_flagged", "count"] == int((ok["n_warnings"] > 0).sum())
+    assert run.summary_csv == summary_path(run.out) and run.summary_csv.endswith("RESULTS.summary.csv")
+
+
+def test_resume_skips_homes_already_done(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    part = tmp_path / "part.csv"
+    lines = (root / "homes.csv").read_text().splitlines()
+    part.write_text("\n".join(lines[:3]) + "\n")  # h1, h2
+    (tmp_path / "logs").symlink_to(root / "logs")
+    (tmp_path / "dataset").symlink_to(root / "dataset")
+    full = tmp_path / "full.csv"
+    full.write_text((root / "homes.csv").read_text())
+    out = tmp_path / "RESULTS.parquet"
+    first = run_fleet(part, out, workers=1, model="2R2C")
+    assert first.n_run == 2
+    before = pd.read_parquet(out).set_index("home_id")
+    second = run_fleet(full, out, workers=2, model="2R2C")
+    assert second.n_skipped == 2 and second.n_run == 3
+    after = pd.read_parquet(out).set_index("home_id")
+    assert sorted(after.index) == ["bad", "h1", "h2", "h3", "h4"]
+    # The seconds of a home are measured when it runs: equal values mean it was not run again.
+    assert after.loc["h1", "seconds"] == before.loc["h1", "seconds"]
+    third = run_fleet(full, out, workers=1, model="2R2C", retry_errors=True)
+    assert third.n_run == 1 and third.n_skipped == 4
+    with pytest.raises(InputError, match="was made with --model 2R2C"):
+        run_fleet(full, out, workers=1, model="1R1C")
+
+
+def test_interruption_keeps_finished_batches_and_the_old_output(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    out = tmp_path / "RESULTS.parquet"
+    seen = []
+
+    def stop_after_first_batch(row):
+        seen.append(row["home_id"])
+        if len(seen) == 3:  # first home of the second batch
+            raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        run_fleet(root / "homes.csv", out, workers=1, model="2R2C", batch_size=2, on_row=stop_after_first_batch)
+    assert not out.exists()
+    assert not [f for f in os.listdir(tmp_path) if f.startswith(".tmp-")]  # no half-written file left
+    parts = sorted(os.listdir(journal_path(out)))
+    assert len(parts) == 1 and pq.read_table(os.path.join(journal_path(out), parts[0])).num_rows == 2
+    run = run_fleet(root / "homes.csv", out, workers=2, model="2R2C", batch_size=2)
+    assert run.n_skipped == 2 and run.n_run == 3
+    assert not os.path.exists(journal_path(out))
+    assert sorted(pd.read_parquet(out)["home_id"]) == ["bad", "h1", "h2", "h3", "h4"]
+
+
+def test_calibrate_home_never_raises(tmp_path):
+    from thermorc.fleet import HomeSpec
+
+    row = calibrate_home(HomeSpec(home_id="gone", log=str(tmp_path / "missing.csv"), site=SITE))
+    assert row["status"] == "error" and row["error"] == "missing.csv: no such file"
+    row = calibrate_home({"home_id": "p", "log": str(tmp_path), "partition": {"home_id": "zz"}})
+    assert row["status"] == "error" and "partition column 'home_id'" in row["error"]
+
+
+def test_dask_cluster_gives_the_local_pool_results(fleet_dir, local_run, tmp_path):
+    distributed = pytest.importorskip("distributed")
+    root, _ = fleet_dir
+    _, local = local_run
+    out = tmp_path / "RESULTS.parquet"
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False, protocol="tcp://", dashboard_address=None,
+                                  host="127.0.0.1") as cluster:
+        run = run_fleet(root / "homes.csv", out, scheduler=cluster.scheduler_address, model="2R2C", batch_size=3)
+    remote = pd.read_parquet(out)
+    assert run.n_run == 5
+    skip = ["seconds"]  # wall time differs run to run
+    pd.testing.assert_frame_equal(remote.drop(columns=skip), local.drop(columns=skip))
+
+
+def test_cli_runs_and_prints_summary(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    out = tmp_path / "R.parquet"
+    manifest = tmp_path / "two.csv"
+    manifest.write_text(f"id,log,site\nh1,{root / 'logs' / 'h1.csv'},\"{SITE}\"\n")
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--model", "2R2C"])
+    assert result.exit_code == 0, result.output
+    assert "ua_w_per_k" in result.stdout and "licensed professional" in result.stdout
+    assert pd.read_parquet(out)["model"].tolist() == ["2R2C"]
+    assert (tmp_path / "R.summary.csv").exists()
+    quiet = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--quiet", "--model", "2R2C"])
+    assert quiet.exit_code == 0 and quiet.stdout == ""
+
+
+def test_cli_bad_manifest_one_line_exit_2_no_output(tmp_path):
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text("id,log,floor_area_m2\nh1,a.csv,-4\n")
+    out = tmp_path / "R.parquet"
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out)])
+    assert result.exit_code == 2
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("thermorc: error: homes.csv, row 2, column 'floor_area_m2': ")
+    assert not out.exists() and not (tmp_path / "R.summary.csv").exists()
+    assert os.listdir(tmp_path) == ["homes.csv"]

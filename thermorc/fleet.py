@@ -1,0 +1,938 @@
+"""
+Fleets: calibrate many homes listed in a manifest, one row of results per home.
+
+The flow is manifest -> homes -> batches -> workers -> row groups -> RESULTS.parquet ->
+summary. :func:`read_manifest` checks every row of a CSV or TOML manifest before any work
+starts; :func:`calibrate_home` runs the ordinary single-home chain
+(:func:`thermorc.chain.calibrate_files`) for one home and turns whatever happens, good or
+bad, into one flat row; :func:`run_fleet` sends homes to a local process pool
+(:class:`concurrent.futures.ProcessPoolExecutor`) or to an existing Dask distributed
+cluster in bounded batches and streams the rows to Parquet; :func:`summarise` describes the
+distribution of the results.
+
+Durability: every finished batch is written, atomically, as one small Parquet file in a
+journal folder beside the output (``RESULTS.parquet.partial/``) and as one row group of a
+temporary output file. The temporary file replaces ``RESULTS.parquet`` only when the run
+ends, so an interrupted run leaves the previous output untouched and the journal holding
+every finished batch; the next run with the same output picks up the old output and the
+journal, skips the homes in them and calculates the rest. The module adds no physics.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import io
+import math
+import os
+import shutil
+import tempfile
+import time
+import tomllib
+import warnings
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from thermorc.errors import InputError
+
+__all__ = [
+    "HomeSpec",
+    "MANIFEST_COLUMNS",
+    "RESULT_COLUMNS",
+    "read_manifest",
+    "calibrate_home",
+    "run_fleet",
+    "FleetRun",
+    "summarise",
+    "summary_path",
+    "journal_path",
+]
+
+#: Manifest columns (CSV header names, TOML keys). ``id`` and ``log`` are required.
+MANIFEST_COLUMNS = (
+    "id", "log", "partition", "column_map", "site", "weather", "tz", "interval", "floor_area_m2",
+    "construction",
+)
+_PATH_COLUMNS = ("log", "column_map", "weather", "construction")
+_MODELS = ("1R1C", "2R2C", "3R2C", "auto")
+
+# Plausible floor areas of one dwelling (common practice: a studio flat has some 20 m2, a
+# large detached house some 1000 m2; the wide span only catches unit and typing errors).
+FLOOR_AREA_BOUNDS_M2 = (5.0, 20000.0)
+
+# One row per home; the order and types are the file contract for scripts downstream.
+RESULT_COLUMNS = (
+    ("home_id", "string"),
+    ("status", "string"),
+    ("error", "string"),
+    ("model", "string"),
+    ("model_requested", "string"),
+    ("ua_w_per_k", "float64"),
+    ("ua_low_w_per_k", "float64"),
+    ("ua_high_w_per_k", "float64"),
+    ("floor_area_m2", "float64"),
+    ("ua_per_floor_area_w_per_m2k", "float64"),
+    ("tau1_h", "float64"),
+    ("tau2_h", "float64"),
+    ("capacitance_j_per_k", "float64"),
+    ("solar_aperture_m2", "float64"),
+    ("cv_rmse_pct", "float64"),
+    ("nmbe_pct", "float64"),
+    ("rmse_k", "float64"),
+    ("n_samples", "int64"),
+    ("data_verdict", "string"),
+    ("n_warnings", "int64"),
+    ("warnings", "string"),
+    ("data_warnings", "string"),
+    ("seconds", "float64"),
+    ("thermorc_version", "string"),
+    ("log_sha256", "string"),
+    ("column_map_sha256", "string"),
+    ("weather_sha256", "string"),
+    ("construction_sha256", "string"),
+)
+
+#: Joins several warnings in one text cell.
+WARNING_SEPARATOR = " | "
+
+
+def _schema():
+    import pyarrow as pa
+
+    types = {"string": pa.string(), "float64": pa.float64(), "int64": pa.int64()}
+    return pa.schema([(name, types[kind]) for name, kind in RESULT_COLUMNS])
+
+
+def journal_path(out):
+    """The folder that holds finished batches of an unfinished run writing ``out``."""
+    return os.fspath(out) + ".partial"
+
+
+def summary_path(out):
+    """The summary CSV written beside ``out`` (``RESULTS.parquet`` -> ``RESULTS.summary.csv``)."""
+    root, _ = os.path.splitext(os.fspath(out))
+    return root + ".summary.csv"
+
+
+# ---------------------------------------------------------------------------------------------
+# Manifest
+# ---------------------------------------------------------------------------------------------
+
+@dataclass
+class HomeSpec:
+    """
+    One home of a fleet, as the manifest gives it, with paths made absolute.
+
+    Attributes
+    ----------
+    home_id : str
+        The manifest's ``id``.
+    log : str
+        Log file, or a Parquet dataset (a file or a folder) when ``partition`` is given.
+    partition : dict
+        Column -> value that selects this home's rows of a Parquet dataset (hive folders
+        ``column=value`` or a column inside the files); empty for a log file of its own.
+    column_map, weather, construction : str or None
+        Column-map TOML, weather file, construction TOML.
+    site : str or None
+        ``"LAT,LON"`` [deg].
+    tz : str or None
+        IANA time zone of naive log times.
+    interval : str or None
+        ``start`` or ``end``: interval label of the log's powers.
+    floor_area_m2 : float or None
+        Conditioned floor area. [m²]
+    manifest : str
+        The manifest file, for messages.
+    row : int or None
+        Row (CSV line, or the line of the TOML ``[[home]]`` header) of this home.
+    """
+
+    home_id: str
+    log: str
+    partition: dict = field(default_factory=dict)
+    column_map: str | None = None
+    site: str | None = None
+    weather: str | None = None
+    tz: str | None = None
+    interval: str | None = None
+    floor_area_m2: float | None = None
+    construction: str | None = None
+    manifest: str | None = None
+    row: int | None = None
+
+
+def read_manifest(path):
+    """
+    Read and check a fleet manifest (CSV or TOML).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        ``.toml`` for TOML, anything else is read as CSV with a header row. The columns
+        (TOML keys) are :data:`MANIFEST_COLUMNS`; ``id`` and ``log`` are required; relative
+        paths are relative to the manifest's folder. A TOML manifest lists homes as
+        ``[[home]]`` tables and may give shared values in a ``[defaults]`` table.
+        docs/fleet.md describes the format.
+
+    Returns
+    -------
+    list of HomeSpec
+        In manifest order.
+
+    Raises
+    ------
+    InputError
+        The first bad row, with the manifest file, row and column.
+    """
+    from thermorc.read import check_file, read_text
+
+    path = check_file(path)
+    text = read_text(path, "utf-8-sig")
+    if os.path.splitext(path)[1].lower() == ".toml":
+        records = _toml_records(text, path)
+    else:
+        records = _csv_records(text, path)
+    if not records:
+        raise InputError("lists no homes (expected at least one row after the header)", path=path)
+    base = os.path.dirname(os.path.abspath(path))
+    homes = []
+    seen = {}
+    for values, row, key_rows in records:
+        home = _home_from_record(values, row, key_rows, path, base)
+        if home.home_id in seen:
+            raise InputError(
+                f"id {home.home_id!r} is listed twice (also on row {seen[home.home_id]}; expected one row per home)",
+                path=path, row=key_rows.get("id", row), column="id",
+            )
+        seen[home.home_id] = row
+        homes.append(home)
+    return homes
+
+
+def _csv_records(text, path):
+    reader = csv.reader(io.StringIO(text))
+    try:
+        header = next(reader)
+    except StopIteration:
+        raise InputError("is empty (expected a header row: id,log,...)", path=path) from None
+    header = [h.strip() for h in header]
+    for name in header:
+        if name not in MANIFEST_COLUMNS:
+            raise InputError(
+                f"unknown column {name!r} (expected some of {', '.join(MANIFEST_COLUMNS)})", path=path, row=1, column=name
+            )
+    if len(set(header)) != len(header):
+        twice = next(h for h in header if header.count(h) > 1)
+        raise InputError("column appears twice in the header", path=path, row=1, column=twice)
+    records = []
+    try:
+        for cells in reader:
+            row = reader.line_num
+            if not any(c.strip() for c in cells):
+                continue
+            if len(cells) > len(header):
+                raise InputError(
+                    f"has {len(cells)} cells but the header names {len(header)} columns (a cell with a comma, such "
+                    "as a site LAT,LON, must be in double quotes)", path=path, row=row
+                )
+            values = {h: c.strip() for h, c in zip(header, cells) if c.strip() != ""}
+            records.append((values, row, {}))
+    except csv.Error as exc:
+        raise InputError(f"is not valid CSV ({exc})", path=path, row=reader.line_num) from None
+    return records
+
+
+def _toml_records(text, path):
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"is not valid TOML ({exc})", path=path) from None
+    lines = text.splitlines()
+    for key in doc:
+        if key not in ("home", "defaults"):
+            raise InputError(f"unknown table {key!r} (expected [defaults] and [[home]] tables)", path=path, column=key)
+    defaults = doc.get("defaults", {})
+    if not isinstance(defaults, dict):
+        raise InputError("'defaults' must be a table", path=path, column="defaults")
+    homes = doc.get("home", [])
+    if not isinstance(homes, list) or not all(isinstance(h, dict) for h in homes):
+        raise InputError("'home' must be an array of tables ([[home]])", path=path, column="home")
+    # tomllib keeps no line numbers; the n-th [[home]] header is the n-th table.
+    header_rows = [i + 1 for i, line in enumerate(lines) if line.strip().startswith("[[home]]")]
+    defaults_row = next((i + 1 for i, line in enumerate(lines) if line.strip().startswith("[defaults]")), None)
+    default_rows = _key_rows(lines, defaults_row, defaults)
+    records = []
+    for n, table in enumerate(homes):
+        row = header_rows[n] if n < len(header_rows) else None
+        key_rows = dict(default_rows)
+        key_rows.update(_key_rows(lines, row, table))
+        values = dict(defaults)
+        values.update(table)
+        for key in values:
+            if key not in MANIFEST_COLUMNS and key != "filters":
+                raise InputError(
+                    f"unknown key {key!r} (expected some of {', '.join(MANIFEST_COLUMNS)}, filters)",
+                    path=path, row=key_rows.get(key, row), column=key,
+                )
+        records.append((values, row, key_rows))
+    return records
+
+
+def _key_rows(lines, start, table):
+    """Line numbers of the keys of a TOML table that starts on line ``start``."""
+    if start is None:
+        return {}
+    found = {}
+    for i in range(start, len(lines)):
+        stripped = lines[i].strip()
+        if stripped.startswith("["):
+            break
+        key = stripped.split("=", 1)[0].strip().strip('"')
+        if "=" in stripped and key in table and key not in found:
+            found[key] = i + 1
+    return found
+
+
+def _text(values, key, where):
+    value = values.get(key)
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, (str, int, float)):
+        raise InputError(f"is {value!r} (expected text)", **where(key))
+    value = str(value).strip()
+    return value or None
+
+
+def _home_from_record(values, row, key_rows, path, base):
+    from thermorc.chain import parse_site
+    from thermorc.read import zone
+
+    def where(key):
+        return {"path": path, "row": key_rows.get(key, row), "column": key}
+
+    home_id = _text(values, "id", where)
+    if home_id is None:
+        raise InputError("no home id (expected a unique name for each home)", **where("id"))
+    log = _text(values, "log", where)
+    if log is None:
+        raise InputError("no log given (expected a log file or a Parquet dataset)", **where("log"))
+    paths = {}
+    for key in _PATH_COLUMNS:
+        value = _text(values, key, where)
+        paths[key] = None if value is None else os.path.normpath(os.path.join(base, os.path.expanduser(value)))
+    partition = _partition(values, where)
+    site = _text(values, "site", where)
+    if site is not None:
+        try:
+            parse_site(site)
+        except InputError as exc:
+            raise InputError(f"site is {site!r} (expected LAT,LON in decimal degrees, e.g. 45.0,-90.0)", **where("site")) from exc
+    tz = _text(values, "tz", where)
+    if tz is not None:
+        try:
+            zone(tz)
+        except InputError as exc:
+            raise InputError(exc.message, **where("tz")) from None
+    interval = _text(values, "interval", where)
+    if interval is not None and interval not in ("start", "end"):
+        raise InputError(f"interval is {interval!r} (expected start or end)", **where("interval"))
+    area = values.get("floor_area_m2")
+    if area is not None:
+        try:
+            area = float(area) if not isinstance(area, bool) else math.nan
+        except (TypeError, ValueError):
+            raise InputError(f"floor area is {area!r} (expected a number of square metres)", **where("floor_area_m2")) from None
+        lo, hi = FLOOR_AREA_BOUNDS_M2
+        if not (math.isfinite(area) and lo <= area <= hi):
+            raise InputError(
+                f"floor area {values.get('floor_area_m2')!r} m2 is outside {lo:g}..{hi:g} m2 (expected the "
+                "conditioned floor area of one dwelling in square metres)", **where("floor_area_m2"),
+            )
+    return HomeSpec(
+        home_id=home_id, log=paths["log"], partition=partition, column_map=paths["column_map"], site=site,
+        weather=paths["weather"], tz=tz, interval=interval, floor_area_m2=area,
+        construction=paths["construction"], manifest=path, row=row,
+    )
+
+
+def _partition(values, where):
+    """``home_id=123/year=2024`` (or a TOML ``filters`` table) -> ``{column: text value}``."""
+    out = {}
+    text = _text(values, "partition", where)
+    if text is not None:
+        for part in text.strip("/").split("/"):
+            key, sep, value = part.partition("=")
+            if not sep or not key.strip() or not value.strip():
+                raise InputError(
+                    f"partition is {text!r} (expected COLUMN=VALUE, several joined by '/', e.g. home_id=123)",
+                    **where("partition"),
+                )
+            out[key.strip()] = value.strip()
+    filters = values.get("filters")
+    if filters is not None:
+        if not isinstance(filters, dict) or not filters:
+            raise InputError("filters must be a table of column = value (e.g. {home_id = 123})", **where("filters"))
+        for key, value in filters.items():
+            if isinstance(value, (dict, list)) or isinstance(value, bool):
+                raise InputError(f"filter {key} = {value!r} (expected a text or number to match)", **where("filters"))
+            out[str(key)] = str(value)
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# One home
+# ---------------------------------------------------------------------------------------------
+
+def _one_line(text, limit=500):
+    text = " ".join(str(text).split())
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
+def _partition_frame(dataset, partition):
+    """The rows of one home from a Parquet dataset, with the selecting columns dropped."""
+    import pyarrow as pa
+    import pyarrow.dataset as ds
+
+    folder = dataset
+    if os.path.isdir(dataset):
+        # A hive layout is read straight from the home's folder, without listing the others.
+        hive = os.path.join(dataset, *[f"{k}={v}" for k, v in partition.items()])
+        if os.path.isdir(hive):
+            return ds.dataset(hive, format="parquet").to_table().to_pandas(), hive
+        data = ds.dataset(folder, format="parquet", partitioning="hive")
+    elif os.path.exists(dataset):
+        data = ds.dataset(dataset, format="parquet")
+    else:
+        raise InputError("no such file or folder", path=dataset)
+    expr = None
+    for key, value in partition.items():
+        if key not in data.schema.names:
+            raise InputError(
+                f"partition column {key!r} is not in the dataset (found {', '.join(data.schema.names[:12])})",
+                path=dataset, column=key,
+            )
+        kind = data.schema.field(key).type
+        try:
+            scalar = pa.scalar(value).cast(kind)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            raise InputError(f"partition value {value!r} does not fit the column's type {kind}", path=dataset, column=key) from None
+        term = ds.field(key) == scalar
+        expr = term if expr is None else expr & term
+    table = data.to_table(filter=expr)
+    frame = table.drop_columns([k for k in partition if k in table.column_names]).to_pandas()
+    return frame, dataset
+
+
+@contextlib.contextmanager
+def _log_file(home):
+    """A path ``calibrate_files`` can read for this home, and the name to show in messages."""
+    if not home.partition:
+        yield home.log, home.log
+        return
+    frame, source = _partition_frame(home.log, home.partition)
+    label = f"{home.log}[{'/'.join(f'{k}={v}' for k, v in home.partition.items())}]"
+    if len(frame) == 0:
+        raise InputError("no rows in this partition", path=label)
+    fd, tmp = tempfile.mkstemp(prefix="thermorc-home-", suffix=".parquet")
+    os.close(fd)
+    try:
+        frame.to_parquet(tmp, index=False)
+        yield tmp, label
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            os.remove(tmp)
+
+
+def _blank_row(home, model):
+    from thermorc import __version__
+
+    row = {name: None for name, _ in RESULT_COLUMNS}
+    row.update(home_id=home.home_id, model_requested=model, floor_area_m2=home.floor_area_m2, n_warnings=0,
+               thermorc_version=__version__)
+    return row
+
+
+def _finite(value):
+    try:
+        value = float(value)
+    except (TypeError, ValueError):
+        return None
+    return value if math.isfinite(value) else None
+
+
+def flatten_result(result, home, model="auto"):
+    """
+    One fleet row from a calibration result.
+
+    Parameters
+    ----------
+    result : thermorc.result.CalibrationResult or dict
+        The result, or its :meth:`~thermorc.result.CalibrationResult.to_dict`.
+    home : HomeSpec
+        The home (for its id and floor area).
+    model : str
+        The model that was asked for.
+
+    Returns
+    -------
+    dict
+        Keys of :data:`RESULT_COLUMNS`; ``status`` is ``"ok"``.
+    """
+    body = result if isinstance(result, dict) else result.to_dict()
+    row = _blank_row(home, model)
+    ua = _finite(body.get("heat_loss_coefficient_w_per_k"))
+    taus = [_finite(t) for t in body.get("time_constants_h") or []]
+    fit = body.get("fit") or {}
+    interval = (body.get("intervals") or {}).get("heat_loss_coefficient_w_per_k") or [None, None]
+    warns = [_one_line(w) for w in body.get("warnings") or []]
+    provenance = (body.get("provenance") or {}).get("inputs", {})
+    row.update(
+        status="ok",
+        model=body.get("model"),
+        ua_w_per_k=ua,
+        ua_low_w_per_k=_finite(interval[0]),
+        ua_high_w_per_k=_finite(interval[1]),
+        ua_per_floor_area_w_per_m2k=(ua / home.floor_area_m2) if ua is not None and home.floor_area_m2 else None,
+        tau1_h=taus[0] if len(taus) > 0 else None,
+        tau2_h=taus[1] if len(taus) > 1 else None,
+        capacitance_j_per_k=_finite(body.get("capacitance_j_per_k")),
+        solar_aperture_m2=_finite((body.get("parameters") or {}).get("solar_aperture_m2")),
+        cv_rmse_pct=_finite(fit.get("cv_rmse_pct")),
+        nmbe_pct=_finite(fit.get("nmbe_pct")),
+        rmse_k=_finite(fit.get("rmse_k")),
+        n_samples=int(fit["n_samples"]) if _finite(fit.get("n_samples")) is not None else None,
+        data_verdict=(body.get("data_quality") or {}).get("verdict"),
+        n_warnings=len(warns),
+        warnings=WARNING_SEPARATOR.join(warns) or None,
+    )
+    for name in ("log", "column_map", "weather", "construction"):
+        row[f"{name}_sha256"] = (provenance.get(name) or {}).get("sha256")
+    version = (body.get("provenance") or {}).get("thermorc_version")
+    if version:
+        row["thermorc_version"] = version
+    return row
+
+
+def calibrate_home(home, model="auto", gains="constant"):
+    """
+    Calibrate one home of a fleet; never raises for a bad home.
+
+    Parameters
+    ----------
+    home : HomeSpec or dict
+        The home (a dict is passed to :class:`HomeSpec`).
+    model : {'1R1C', '2R2C', '3R2C', 'auto'}
+        Model to fit, or ``auto`` to compare all three.
+    gains : {'constant', 'day_night'}
+        Model of unlogged internal gains.
+
+    Returns
+    -------
+    dict
+        One row with the keys of :data:`RESULT_COLUMNS`. A home that cannot be calibrated
+        gets ``status = "error"`` and the one-line reason in ``error`` (for bad input, the
+        file, row and column as :class:`~thermorc.errors.InputError` states them).
+    """
+    from thermorc.chain import calibrate_files
+    from thermorc.errors import ThermorcWarning
+
+    if isinstance(home, dict):
+        home = HomeSpec(**home)
+    started = time.perf_counter()
+    row = _blank_row(home, model)
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            with _log_file(home) as (log_path, label):
+                try:
+                    result = calibrate_files(
+                        log_path, column_map=home.column_map, tz=home.tz, interval=home.interval,
+                        weather=home.weather, site=home.site, construction=home.construction, model=model,
+                        gains=gains,
+                    )
+                except InputError as exc:
+                    if exc.path == log_path and label != log_path:
+                        raise InputError(exc.message, path=label, row=exc.row, column=exc.column) from None
+                    raise
+        row = flatten_result(result, home, model)
+        data_warns = [_one_line(w.message) for w in caught if issubclass(w.category, ThermorcWarning)]
+        data_warns = [w for w in dict.fromkeys(data_warns) if w not in (row["warnings"] or "")]
+        row["data_warnings"] = WARNING_SEPARATOR.join(data_warns) or None
+    except InputError as exc:
+        row.update(status="error", error=_one_line(exc))
+    except Exception as exc:  # noqa: BLE001 - one bad home must not stop a fleet
+        row.update(status="error", error=_one_line(f"internal error: {type(exc).__name__}: {exc}"))
+    row["seconds"] = time.perf_counter() - started
+    return row
+
+
+# ---------------------------------------------------------------------------------------------
+# Runner
+# ---------------------------------------------------------------------------------------------
+
+@dataclass
+class FleetRun:
+    """
+    What a fleet run did.
+
+    Attributes
+    ----------
+    out : str
+        The results file.
+    summary_csv : str
+        The summary table beside it.
+    summary : pandas.DataFrame
+        The summary (see :func:`summarise`).
+    n_homes : int
+        Homes in the manifest.
+    n_skipped : int
+        Homes already in the output (or its journal) and not calculated again.
+    n_run : int
+        Homes calculated in this run.
+    n_errors : int
+        Homes of this run that ended with ``status = "error"``.
+    seconds : float
+        Wall time of the run. [s]
+    """
+
+    out: str
+    summary_csv: str
+    summary: pd.DataFrame
+    n_homes: int
+    n_skipped: int
+    n_run: int
+    n_errors: int
+    seconds: float
+
+
+def _check_schema(schema, path):
+    names = [name for name, _ in RESULT_COLUMNS]
+    if list(schema.names) != names:
+        raise InputError(
+            "is not a thermorc fleet output of this version (its columns differ; write to a new file, or "
+            "delete it to start again)", path=path,
+        )
+
+
+def _carry_over(writer, source, done, model, retry_errors, out):
+    """Copy the rows of an earlier output or journal file, row group by row group."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        handle = pq.ParquetFile(source)
+    except Exception as exc:  # noqa: BLE001 - pyarrow raises many types for damaged files
+        raise InputError(f"cannot read it to resume ({type(exc).__name__}); delete it to start again", path=source) from None
+    _check_schema(handle.schema_arrow, source)
+    kept = 0
+    for i in range(handle.num_row_groups):
+        table = handle.read_row_group(i)
+        asked = set(table.column("model_requested").to_pylist()) - {None}
+        if asked and asked != {model}:
+            raise InputError(
+                f"was made with --model {sorted(asked)[0]}; resume with the same model, or write to a new --out",
+                path=out, column="model_requested",
+            )
+        ids = table.column("home_id").to_pylist()
+        keep = [i not in done for i in ids]
+        if retry_errors:
+            status = table.column("status").to_pylist()
+            keep = [k and s != "error" for k, s in zip(keep, status)]
+        if not all(keep):
+            table = table.filter(pa.array(keep, type=pa.bool_()))
+        if table.num_rows:
+            writer.write_table(table)
+            done.update(table.column("home_id").to_pylist())
+            kept += table.num_rows
+    return kept
+
+
+def _write_journal(folder, seq, table):
+    import pyarrow.parquet as pq
+
+    from thermorc.write import atomic_write
+
+    os.makedirs(folder, exist_ok=True)
+    with atomic_write(os.path.join(folder, f"batch-{seq:06d}-{os.getpid()}-{time.time_ns()}.parquet"), "wb") as handle:
+        pq.write_table(table, handle)
+
+
+class _LocalPool:
+    """A process pool; a dead worker process costs its homes, not the run."""
+
+    def __init__(self, workers):
+        self.workers = int(workers)
+        self.pool = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        if self.pool is not None:
+            self.pool.shutdown(wait=exc[0] is None, cancel_futures=True)
+
+    def run(self, homes, kwargs, on_row):
+        import concurrent.futures as cf
+        from concurrent.futures.process import BrokenProcessPool
+
+        if self.pool is None:
+            self.pool = cf.ProcessPoolExecutor(max_workers=self.workers)
+        futures = {self.pool.submit(calibrate_home, h, **kwargs): h for h in homes}
+        broken = False
+        for fut in cf.as_completed(futures):
+            try:
+                row = fut.result()
+            except BrokenProcessPool as exc:
+                broken = True
+                row = _worker_failed(futures[fut], kwargs, exc)
+            except Exception as exc:  # noqa: BLE001 - e.g. a result that could not be pickled
+                row = _worker_failed(futures[fut], kwargs, exc)
+            on_row(row)
+        if broken:
+            self.pool.shutdown(wait=False, cancel_futures=True)
+            self.pool = None
+
+
+class _DaskPool:
+    """An existing Dask distributed cluster, reached through :class:`distributed.Client`."""
+
+    def __init__(self, address):
+        self.address = address
+        self.client = None
+
+    def __enter__(self):
+        import distributed
+
+        try:
+            self.client = distributed.Client(self.address, timeout="20s", set_as_default=False)
+        except (OSError, TimeoutError) as exc:
+            raise InputError(f"cannot reach the Dask scheduler at {self.address} ({_one_line(exc, 200)})",
+                             column="--scheduler") from None
+        return self
+
+    def __exit__(self, *exc):
+        if self.client is not None:
+            self.client.close()
+
+    def run(self, homes, kwargs, on_row):
+        import distributed
+
+        futures = self.client.map(calibrate_home, homes, pure=False, **kwargs)
+        which = {f.key: h for f, h in zip(futures, homes)}
+        for fut in distributed.as_completed(futures, loop=self.client.loop):
+            try:
+                row = fut.result()
+            except Exception as exc:  # noqa: BLE001 - a lost worker costs its homes, not the run
+                row = _worker_failed(which[fut.key], kwargs, exc)
+            on_row(row)
+            fut.release()
+
+
+def _worker_failed(home, kwargs, exc):
+    row = _blank_row(home, kwargs.get("model", "auto"))
+    row.update(status="error", error=_one_line(f"the worker running this home failed: {type(exc).__name__}: {exc}"))
+    return row
+
+
+def run_fleet(
+    manifest,
+    out,
+    workers=None,
+    scheduler=None,
+    model="auto",
+    gains="constant",
+    batch_size=None,
+    retry_errors=False,
+    on_start=None,
+    on_row=None,
+):
+    """
+    Calibrate every home of a manifest and write one row per home to Parquet.
+
+    Parameters
+    ----------
+    manifest : str, os.PathLike or list of HomeSpec
+        Manifest file (see :func:`read_manifest`) or homes already read.
+    out : str or os.PathLike
+        Results Parquet file. When it exists, or a journal of an interrupted run beside it
+        does, the homes in them are kept and skipped (resume).
+    workers : int, optional
+        Processes of the local pool; default :func:`os.cpu_count`.
+    scheduler : str, optional
+        Address of a running Dask distributed scheduler (e.g. ``tcp://10.0.0.5:8786``); the
+        homes run there instead of on a local pool.
+    model : {'1R1C', '2R2C', '3R2C', 'auto'}
+        Model for every home.
+    gains : {'constant', 'day_night'}
+        Model of unlogged internal gains.
+    batch_size : int, optional
+        Homes sent out at a time, and rows per row group; default ``max(32, 8 * workers)``.
+        An interrupted run loses at most the batch it was working on.
+    retry_errors : bool
+        Calculate again the homes that ended in error in an earlier run.
+    on_start : callable, optional
+        Called once as ``on_start(n_to_run)`` before the first batch.
+    on_row : callable, optional
+        Called with each new row as it arrives (for a progress bar).
+
+    Returns
+    -------
+    FleetRun
+    """
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    started = time.perf_counter()
+    if model not in _MODELS:
+        raise InputError(f"model {model!r} is not known (expected one of {', '.join(_MODELS)})")
+    homes = manifest if isinstance(manifest, list) else read_manifest(manifest)
+    out = os.path.abspath(os.fspath(out))
+    if os.path.isdir(out):
+        raise InputError("is a folder (expected a Parquet file to write)", path=out)
+    if scheduler is not None and workers is not None:
+        raise InputError("--workers sets the local pool; a Dask cluster has its own workers", column="--workers")
+    workers = int(workers or os.cpu_count() or 1)
+    if workers < 1:
+        raise InputError(f"workers is {workers} (expected 1 or more)", column="--workers")
+    batch_size = int(batch_size or max(32, 8 * workers))
+    if batch_size < 1:
+        raise InputError(f"batch size is {batch_size} (expected 1 or more)", column="--batch")
+    kwargs = {"model": model, "gains": gains}
+    schema = _schema()
+    journal = journal_path(out)
+    folder = os.path.dirname(out)
+    os.makedirs(folder, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix="-" + os.path.basename(out), dir=folder)
+    os.close(fd)
+    n_run = n_errors = 0
+    writer = pq.ParquetWriter(tmp, schema)
+    try:
+        done = set()
+        sources = [out] if os.path.exists(out) else []
+        if os.path.isdir(journal):
+            sources += sorted(os.path.join(journal, f) for f in os.listdir(journal) if f.endswith(".parquet"))
+        for source in sources:
+            _carry_over(writer, source, done, model, retry_errors, out)
+        todo = [h for h in homes if h.home_id not in done]
+        n_skipped = len(homes) - len(todo)
+        if on_start is not None:
+            on_start(len(todo))
+        pool = _DaskPool(scheduler) if scheduler is not None else _LocalPool(min(workers, max(len(todo), 1)))
+        with pool:
+            for seq, first in enumerate(range(0, len(todo), batch_size)):
+                batch = todo[first:first + batch_size]
+                rows = []
+
+                def collect(row):
+                    rows.append(row)
+                    if on_row is not None:
+                        on_row(row)
+
+                pool.run(batch, kwargs, collect)
+                # Manifest order inside a batch keeps outputs comparable between runs.
+                order = {h.home_id: i for i, h in enumerate(batch)}
+                rows.sort(key=lambda r: order[r["home_id"]])
+                table = pa.Table.from_pylist(rows, schema=schema)
+                _write_journal(journal, seq, table)
+                writer.write_table(table)
+                n_run += len(rows)
+                n_errors += sum(r["status"] == "error" for r in rows)
+        writer.close()
+        writer = None
+        os.replace(tmp, out)
+    except BaseException:
+        if writer is not None:
+            writer.close()
+        with contextlib.suppress(FileNotFoundError):
+            os.remove(tmp)
+        raise
+    # The output now holds every journal row; the journal has done its job.
+    shutil.rmtree(journal, ignore_errors=True)
+    summary = summarise(out)
+    csv_path = summary_path(out)
+    from thermorc.write import write_csv
+
+    write_csv(csv_path, summary, index=False)
+    return FleetRun(
+        out=out, summary_csv=csv_path, summary=summary, n_homes=len(homes), n_skipped=n_skipped, n_run=n_run,
+        n_errors=n_errors, seconds=time.perf_counter() - started,
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Summary
+# ---------------------------------------------------------------------------------------------
+
+#: Quantities described by the summary, with their unit.
+SUMMARY_QUANTITIES = (
+    ("ua_w_per_k", "W/K"),
+    ("ua_per_floor_area_w_per_m2k", "W/m2K"),
+    ("tau1_h", "h"),
+    ("tau2_h", "h"),
+    ("capacitance_j_per_k", "J/K"),
+    ("cv_rmse_pct", "%"),
+    ("nmbe_pct", "%"),
+    ("rmse_k", "K"),
+    ("seconds", "s"),
+)
+
+
+def summarise(results):
+    """
+    Distribution of fleet results: count, mean and percentiles of each quantity.
+
+    Parameters
+    ----------
+    results : str, os.PathLike or pandas.DataFrame
+        A fleet results Parquet file (only the columns needed are read) or its table.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per quantity of :data:`SUMMARY_QUANTITIES` over the homes with status
+        ``ok`` (``quantity``, ``unit``, ``count``, ``mean``, ``p10``, ``p50``, ``p90``,
+        ``min``, ``max``), then counts: ``homes``, ``homes_ok``, ``homes_error``,
+        ``homes_flagged`` (calibrated, with at least one warning about the fit) and
+        ``model_<name>`` for each chosen model.
+
+    Notes
+    -----
+    Percentiles are :func:`numpy.percentile` with linear interpolation between order
+    statistics (R. J. Hyndman and Y. Fan, "Sample quantiles in statistical packages," The
+    American Statistician, vol. 50, no. 4, pp. 361-365, 1996, definition 7).
+    """
+    columns = [q for q, _ in SUMMARY_QUANTITIES] + ["status", "n_warnings", "model"]
+    if isinstance(results, pd.DataFrame):
+        frame = results[columns]
+    else:
+        frame = pd.read_parquet(results, columns=columns)
+    ok = frame[frame["status"] == "ok"]
+    rows = []
+    for name, unit in SUMMARY_QUANTITIES:
+        v = pd.to_numeric(ok[name], errors="coerce").to_numpy(dtype=float)
+        v = v[np.isfinite(v)]
+        stats = {"quantity": name, "unit": unit, "count": int(v.size)}
+        if v.size:
+            p10, p50, p90 = np.percentile(v, [10, 50, 90])
+            stats.update(mean=float(v.mean()), p10=float(p10), p50=float(p50), p90=float(p90), min=float(v.min()), max=float(v.max()))
+        rows.append(stats)
+    counts = [
+        ("homes", len(frame)),
+        ("homes_ok", len(ok)),
+        ("homes_error", int((frame["status"] == "error").sum())),
+        ("homes_flagged", int((ok["n_warnings"].fillna(0) > 0).sum())),
+    ]
+    for name, n in ok["model"].value_counts().sort_index().items():
+        counts.append((f"model_{name}", int(n)))
+    rows += [{"quantity": name, "unit": "homes", "count": n} for name, n in counts]
+    table = pd.DataFrame(rows, columns=["quantity", "unit", "count", "mean", "p10", "p50", "p90", "min", "max"])
+    table["count"] = table["count"].astype("int64")
+    return table
+
+
+def home_dict(home):
+    """A :class:`HomeSpec` as a plain dict (for logs and tests)."""
+    return asdict(home)
