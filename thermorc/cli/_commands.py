@@ -9,3 +9,4 @@ from thermorc.cli import simulate  # noqa: F401
 from thermorc.cli import forecast  # noqa: F401
 from thermorc.cli import setback  # noqa: F401
 from thermorc.cli import fleet  # noqa: F401
+from thermorc.cli import report  # noqa: F401
