@@ -206,6 +206,45 @@ def _step_matrices(space, dt_s):
     return ad, b0, b1
 
 
+def _drive_loop(u_ext, b0, b1):
+    """``u_ext[:-1] @ b0.T + u_ext[1:] @ b1.T`` as a plain loop."""
+    n_rows = u_ext.shape[0] - 1
+    n, m = b0.shape
+    out = np.empty((n_rows, n))
+    for k in range(n_rows):
+        for i in range(n):
+            acc = 0.0
+            for j in range(m):
+                acc += b0[i, j] * u_ext[k, j] + b1[i, j] * u_ext[k + 1, j]
+            out[k, i] = acc
+    return out
+
+
+def step_drive(u, b0, b1):
+    """
+    Weather and gains term of each step: ``b0 u[k] + b1 u[k+1]`` (the last row held).
+
+    Parameters
+    ----------
+    u : numpy.ndarray, shape (N, m)
+        Inputs at the stamps, the heater channel zeroed.
+    b0, b1 : numpy.ndarray, shape (n, m)
+        One-step input matrices (:func:`thermorc.simulate.discretise`).
+
+    Returns
+    -------
+    numpy.ndarray, shape (N, n)
+
+    Notes
+    -----
+    A compiled loop rather than a matrix product: for a tall, thin product such as this
+    (10^5 x 4 by 4 x 2) a multi-threaded BLAS can spend far longer starting and waiting for its
+    threads than on the arithmetic when the machine's cores are busy.
+    """
+    u_ext = np.ascontiguousarray(np.vstack([u, u[-1:]]), dtype=float)
+    return _drive(u_ext, np.ascontiguousarray(b0, dtype=float), np.ascontiguousarray(b1, dtype=float))
+
+
 def _thermostat_loop(ad, drive, bq, sp, x, si, cap, half_band, heat, on_out):
     """On/off heater sampled at each stamp; returns the number of off -> on switches."""
     n = x.shape[0]
@@ -233,12 +272,14 @@ def _thermostat_loop(ad, drive, bq, sp, x, si, cap, half_band, heat, on_out):
     return cycles
 
 
-try:  # numba compiles the loop; without it the same code runs, slowly, as Python.
+try:  # numba compiles the loops; without it the same code runs, slowly, as Python.
     import numba
 
     _thermostat_loop = numba.njit(cache=True)(_thermostat_loop)
+    _drive = numba.njit(cache=True)(_drive_loop)
 except ImportError:  # pragma: no cover - numba is a declared dependency
-    pass
+    def _drive(u_ext, b0, b1):
+        return u_ext[:-1] @ b0.T + u_ext[1:] @ b1.T
 
 
 def thermostat(network, inputs, setpoint_c, capacity_w, deadband_k=DEFAULT_DEADBAND_K, x0=None,
@@ -298,8 +339,7 @@ def thermostat(network, inputs, setpoint_c, capacity_w, deadband_k=DEFAULT_DEADB
     if x0 is None:
         x0 = hold_setpoint(network, frame.iloc[:2], sp[:2]).temperatures_c[list(space.states)].to_numpy()[0]
     x = np.array(x0, dtype=float)
-    u_ext = np.vstack([u, u[-1:]])
-    drive = np.ascontiguousarray(u_ext[:-1] @ b0.T + u_ext[1:] @ b1.T)
+    drive = step_drive(u, b0, b1)
     heat = np.zeros(len(u))
     on = np.zeros(len(u), dtype=np.bool_)
     cycles = _thermostat_loop(np.ascontiguousarray(ad), drive, np.ascontiguousarray(b0[:, ci]), sp, x,

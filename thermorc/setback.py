@@ -48,6 +48,7 @@ from thermorc.forecast import (
     model_inputs,
     run_heater,
     safety_cautions,
+    step_drive,
     thermostat_caution,
     warm_start,
 )
@@ -464,8 +465,7 @@ def optimal_start_leads(network, inputs, comfort_c, occupied, capacity_w, max_le
     ci = list(space.inputs).index(channel)
     si = list(space.states).index(node)
     u = inputs.assign(**{channel: 0.0})[list(space.inputs)].to_numpy(dtype=float)
-    u_ext = np.vstack([u, u[-1:]])
-    drive = np.ascontiguousarray(u_ext[:-1] @ b0.T + u_ext[1:] @ b1.T)
+    drive = step_drive(u, b0, b1)
     powers = np.empty((max_lead + 2, len(space.states), len(space.states)))
     powers[0] = np.eye(len(space.states))
     for i in range(1, powers.shape[0]):
