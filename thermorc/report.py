@@ -478,7 +478,7 @@ def daily_energy(frame, step_s, observed=None, min_coverage=0.9):
 
 
 def signature_ua(daily, min_days=7):
-    """
+    r"""
     Heat loss coefficient from an energy signature: daily energy against (indoor - outdoor).
 
     Parameters
