@@ -1024,7 +1024,7 @@ def _fmt(value, digits=3):
 
 def _align(value):
     # Text cells read better left-aligned; numbers stay right-aligned so digits line up.
-    return " class='t'" if isinstance(value, str) and len(value) > 3 else ""
+    return " class='t'" if isinstance(value, str) and len(value) > 5 else ""
 
 
 def _table_html(frame, columns=None, headers=None, index_label=None):
