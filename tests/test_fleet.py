@@ -316,3 +316,15 @@ def test_cli_bad_manifest_one_line_exit_2_no_output(tmp_path):
     assert len(lines) == 1 and lines[0].startswith("thermorc: error: homes.csv, row 2, column 'floor_area_m2': ")
     assert not out.exists() and not (tmp_path / "R.summary.csv").exists()
     assert os.listdir(tmp_path) == ["homes.csv"]
+
+
+def test_cli_workers_and_scheduler_are_exclusive(tmp_path):
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text("id,log\nh1,a.csv\n")
+    out = tmp_path / "R.parquet"
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "2", "--scheduler",
+                                 "tcp://127.0.0.1:8786"])
+    assert result.exit_code == 2
+    assert result.stderr.strip() == ("thermorc: error: --workers sets the local pool; a Dask cluster has its own "
+                                     "workers (give one of them)")
+    assert not out.exists()

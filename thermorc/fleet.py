@@ -660,6 +660,30 @@ def _write_journal(folder, seq, table):
         pq.write_table(table, handle)
 
 
+# Workers are replaced after this many homes, so that memory a long run leaks (caches,
+# fragmentation) stays bounded; a fresh worker costs a fork of the preloaded server.
+TASKS_PER_WORKER = 500
+
+
+def _pool_context():
+    """
+    Start workers from a clean server process that has imported the calibration chain.
+
+    Forking the runner itself would copy its threads' locks (the progress bar's, Dask's)
+    into the workers in whatever state they are; the forkserver start method forks a
+    single-threaded server instead (Python documentation, multiprocessing, "Contexts and
+    start methods"). Where it is missing (Windows), workers are spawned.
+    """
+    import multiprocessing
+
+    try:
+        ctx = multiprocessing.get_context("forkserver")
+    except ValueError:
+        return multiprocessing.get_context("spawn")
+    ctx.set_forkserver_preload(["thermorc.chain", "thermorc.estimate", "thermorc.fleet"])
+    return ctx
+
+
 class _LocalPool:
     """A process pool; a dead worker process costs its homes, not the run."""
 
@@ -679,7 +703,8 @@ class _LocalPool:
         from concurrent.futures.process import BrokenProcessPool
 
         if self.pool is None:
-            self.pool = cf.ProcessPoolExecutor(max_workers=self.workers)
+            self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=_pool_context(),
+                                               max_tasks_per_child=TASKS_PER_WORKER)
         futures = {self.pool.submit(calibrate_home, h, **kwargs): h for h in homes}
         broken = False
         for fut in cf.as_completed(futures):
@@ -709,8 +734,7 @@ class _DaskPool:
         try:
             self.client = distributed.Client(self.address, timeout="20s", set_as_default=False)
         except (OSError, TimeoutError) as exc:
-            raise InputError(f"cannot reach the Dask scheduler at {self.address} ({_one_line(exc, 200)})",
-                             column="--scheduler") from None
+            raise InputError(f"--scheduler: cannot reach the Dask scheduler at {self.address} ({_one_line(exc, 200)})") from None
         return self
 
     def __exit__(self, *exc):
@@ -793,13 +817,13 @@ def run_fleet(
     if os.path.isdir(out):
         raise InputError("is a folder (expected a Parquet file to write)", path=out)
     if scheduler is not None and workers is not None:
-        raise InputError("--workers sets the local pool; a Dask cluster has its own workers", column="--workers")
+        raise InputError("--workers sets the local pool; a Dask cluster has its own workers (give one of them)")
     workers = int(workers or os.cpu_count() or 1)
     if workers < 1:
-        raise InputError(f"workers is {workers} (expected 1 or more)", column="--workers")
+        raise InputError(f"--workers is {workers} (expected 1 or more)")
     batch_size = int(batch_size or max(32, 8 * workers))
     if batch_size < 1:
-        raise InputError(f"batch size is {batch_size} (expected 1 or more)", column="--batch")
+        raise InputError(f"--batch is {batch_size} (expected 1 or more)")
     kwargs = {"model": model, "gains": gains}
     schema = _schema()
     journal = journal_path(out)
@@ -818,10 +842,10 @@ def run_fleet(
             _carry_over(writer, source, done, model, retry_errors, out)
         todo = [h for h in homes if h.home_id not in done]
         n_skipped = len(homes) - len(todo)
-        if on_start is not None:
-            on_start(len(todo))
         pool = _DaskPool(scheduler) if scheduler is not None else _LocalPool(min(workers, max(len(todo), 1)))
         with pool:
+            if on_start is not None:
+                on_start(len(todo))
             for seq, first in enumerate(range(0, len(todo), batch_size)):
                 batch = todo[first:first + batch_size]
                 rows = []
