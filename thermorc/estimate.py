@@ -12,10 +12,13 @@ Start values come from the data, not from fixed guesses: a steady-state energy b
 daily means gives the heat loss coefficient, solar aperture and gains by linear least squares
 [1]_, and the decay of indoor temperature while the heating is off gives a time constant.
 
-Output-error residuals are autocorrelated, so their covariance is the Newey-West
-heteroskedasticity-and-autocorrelation-consistent (HAC) sandwich [2]_, never the white-noise
-formula; prediction-error innovations are close to white, so the inverse Hessian of the
-log-likelihood serves there [3]_.
+Output-error residuals are autocorrelated: besides measurement noise they carry the slow
+response of the network to heat it does not see. Their covariance is therefore a sandwich
+with a residual model of white noise plus an AR(1) at the network's own slowest mode, whose
+two variances come from unbiased quadratic moments [2]_, never the white-noise formula;
+prediction-error innovations are close to white, so the inverse Hessian of the
+log-likelihood serves there [3]_. Repeated synthetic homes show the 95 % intervals cover the
+truth about 95 % of the time (tests/test_estimate.py).
 
 References
 ----------
@@ -24,9 +27,8 @@ References
    method of P. Bacher and H. Madsen, "Identifying suitable models for the heat dynamics of
    buildings," Energy and Buildings, vol. 43, no. 7, pp. 1511-1522, 2011,
    doi:10.1016/j.enbuild.2011.02.005.
-.. [2] W. K. Newey and K. D. West, "A simple, positive semi-definite, heteroskedasticity and
-   autocorrelation consistent covariance matrix," Econometrica, vol. 55, no. 3,
-   pp. 703-708, 1987.
+.. [2] C. R. Rao, "Estimation of variance and covariance components - MINQUE theory,"
+   J. Multivariate Anal., vol. 1, no. 3, pp. 257-275, 1971.
 .. [3] N. R. Kristensen, H. Madsen and S. B. Jørgensen, "Parameter estimation in stochastic
    grey-box models," Automatica, vol. 40, no. 2, pp. 225-237, 2004.
 """
@@ -40,7 +42,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+import scipy.linalg
 import scipy.optimize
+import scipy.signal
 
 from thermorc import diagnose
 from thermorc.errors import (
@@ -517,7 +521,8 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             sol = scipy.optimize.least_squares(
-                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=1.0, max_nfev=max_nfev, diff_step=1e-6
+                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=1.0, max_nfev=max_nfev, diff_step=1e-6,
+                ftol=1e-12, xtol=1e-12, gtol=1e-10,
             )
         tried.append({"cost": float(sol.cost), "status": int(sol.status), "nfev": int(sol.nfev)})
         if best is None or sol.cost < best[1].cost:
@@ -628,6 +633,77 @@ def _hessian(func, x, step=1e-4):
     return hess
 
 
+def _ar1_times(matrix, rho):
+    """``R @ matrix`` for the AR(1) correlation matrix ``R_ij = rho**|i-j|``, in O(n)."""
+    forward = scipy.signal.lfilter([1.0], [1.0, -rho], matrix, axis=0)
+    backward = scipy.signal.lfilter([1.0], [1.0, -rho], matrix[::-1], axis=0)[::-1]
+    return forward + backward - matrix
+
+
+def _slow_mode_covariance(jacobian, residuals, rho):
+    r"""
+    Sandwich covariance of least-squares parameters under white-plus-slow-mode residuals.
+
+    Output-error residuals of an RC model are measurement noise plus the response of the
+    network to heat it does not see; that response decays with the network's slowest time
+    constant :math:`	au`, so between residual blocks of length :math:`\Delta` it is an AR(1)
+    process with :math:`
+ho = e^{-\Delta/	au}`. The residual covariance is then
+    :math:`\Sigma = \sigma_w^2 I + c R`, :math:`R_{ij} = 
+ho^{|i-j|}`, with :math:`c` fitted to
+    unbiased quadratic moments of the residuals. The covariance of the least-squares estimate is the
+    sandwich :math:`(J^TJ)^{-1} J^T \Sigma J (J^TJ)^{-1}` (the textbook form for least squares
+    with correlated errors: e.g. W. H. Greene, Econometric Analysis, 5th ed., ch. 10 and 12;
+    edition and chapters from memory). Unlike a kernel estimator,
+    it does not miss the long memory of the slow mode.
+
+    Returns
+    -------
+    cov : numpy.ndarray
+        Covariance of the parameters.
+    label : str
+        How it was made, for the result.
+    """
+    e = np.asarray(residuals, dtype=float)
+    jac = np.asarray(jacobian, dtype=float)
+    n, k = jac.shape
+    try:
+        bread = np.linalg.inv(jac.T @ jac)
+    except np.linalg.LinAlgError:
+        return np.full((k, k), np.nan), "singular information matrix"
+    # Residuals are the errors projected off the Jacobian, r = M e, which removes much of a
+    # slow error; the two variances are therefore found from unbiased quadratic moments,
+    # E[r'r] = s_w tr(M) + c tr(MR) and E[r'Rr] = s_w tr(MR) + c tr(MRMR) (the MINQUE idea:
+    # C. R. Rao, "Estimation of variance and covariance components - MINQUE theory,"
+    # J. Multivariate Anal., vol. 1, no. 3, pp. 257-275, 1971).
+    rj = _ar1_times(jac, rho)
+    rrj = _ar1_times(rj, rho)
+    jrj = jac.T @ rj
+    lags = np.arange(1, n)
+    tr_r = float(n)
+    tr_rr = n + 2.0 * float(np.sum((n - lags) * rho ** (2.0 * lags)))
+    tr_m = n - k
+    tr_mr = tr_r - float(np.trace(bread @ jrj))
+    tr_mrmr = tr_rr - 2.0 * float(np.trace(bread @ (rj.T @ rj))) + float(np.trace(bread @ jrj @ bread @ jrj))
+    lhs = np.array([[tr_m, tr_mr], [tr_mr, tr_mrmr]])
+    rhs = np.array([e @ e, e @ _ar1_times(e, rho)])
+    try:
+        white, c = np.linalg.solve(lhs, rhs)
+    except np.linalg.LinAlgError:
+        white, c = float(e @ e) / max(tr_m, 1), 0.0
+    if c < 0:
+        white, c = float(e @ e) / max(tr_m, 1), 0.0
+    if white < 0:
+        white, c = 0.0, float(e @ e) / max(tr_mr, 1e-12)
+    gamma0 = white + c
+    meat = white * (jac.T @ jac) + c * jrj
+    cov = bread @ meat @ bread
+    share = c / gamma0 if gamma0 > 0 else 0.0
+    return 0.5 * (cov + cov.T), (
+        f"sandwich with white plus slow-mode AR(1) residuals (rho {rho:.3f}, slow share {share:.2f} of variance)"
+    )
+
+
 def _derived(layout: _Layout, theta):
     """Heat loss coefficient, time constants and total capacitance for a parameter vector."""
     net = layout.network(theta)
@@ -728,9 +804,10 @@ def calibrate(
         at_bound = (theta - lower < 1e-6 * span) | (upper - theta < 1e-6 * span)
         free = np.flatnonzero(~at_bound)
         cov = np.full((k, k), np.nan)
-        sub_cov, bandwidth = diagnose.hac_covariance(sol.jac[:, free], sol.fun)
+        tau_slow = layout.network(theta).time_constants_s()[0]
+        sub_cov, how = _slow_mode_covariance(sol.jac[:, free], sol.fun, math.exp(-block * data.step_s / tau_slow))
         cov[np.ix_(free, free)] = sub_cov
-        cov_note = f"Newey-West HAC on hourly residual blocks, bandwidth {bandwidth}"
+        cov_note = "hourly residual blocks: " + how
         success, message, nfev = bool(sol.success), str(sol.message), int(sol.nfev)
     else:
         ml, objective, bounds = _fit_prediction_error(layout, theta, data)
