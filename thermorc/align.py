@@ -404,7 +404,8 @@ def align_weather(weather, index, path=None):
     out = {}
     for col in w.columns:
         v = w[col].to_numpy(dtype=float)
-        if col in ("ghi_w_m2", "dni_w_m2", "dhi_w_m2") or col in INTERVAL_MEAN_COLUMNS:
+        # Every irradiance column (``*_w_m2``) is an interval mean, whatever its plane.
+        if col.endswith("_w_m2") or col in INTERVAL_MEAN_COLUMNS:
             out[col], _ = interval_means(wt, v, dur, edges, 0.5)
         else:
             vals = instants(wt, v, it, 3.0 * w_step)

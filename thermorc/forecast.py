@@ -162,6 +162,19 @@ def model_inputs(result, weather, step_s=300.0, parameters=None):
     if weather.index.tz is None:
         raise InputError("weather times need a time zone", column="time")
     irradiance = result.solar_input if result.solar_input in weather.columns else None
+    if irradiance is None and "ghi_w_m2" in weather.columns:
+        from thermorc.chain import SOLAR_COLUMN, vertical_irradiance
+
+        if result.solar_input == SOLAR_COLUMN:
+            # The calibration's solar input is façade irradiance: make it from this weather.
+            site = result.site or {}
+            if "latitude" not in site or "longitude" not in site:
+                raise InputError(
+                    "the calibration result has no site, which its solar input needs (calibrate with --site or "
+                    "a weather file)", column="site",
+                )
+            weather = weather.assign(**{SOLAR_COLUMN: vertical_irradiance(weather, site, weather)})
+            irradiance = SOLAR_COLUMN
     for col in ("outdoor_c", irradiance or result.solar_input):
         if col not in weather.columns:
             raise InputError(f"weather has no {col} column (found {list(weather.columns)})", column=col)

@@ -583,7 +583,10 @@ def hold_setpoint(
         x_start = _initial_state(network, space, u[0], x0)
     u_ext = np.vstack([u_free, u_free[-1:]])
     sp_ext = np.concatenate([setpoint, setpoint[-1:]])
-    heat, short = _heater_loop(ad, b0, b1, u_ext, sp_ext, x_start, si, ci, cap, -np.inf if allow_cooling else 0.0)
+    heat, short = _heater_loop(
+        ad, b0, b1, u_ext, sp_ext, x_start, si, ci, cap, -np.inf if allow_cooling else 0.0,
+        a_row=space.a[si], b_row=space.b[si],
+    )
     u_used = u.copy()
     u_used[:, ci] = heat
     frame = inputs.copy() if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u_used, index=index, columns=space.inputs)
@@ -607,7 +610,7 @@ def _setpoint_steady_state(network, space, u_row, setpoint, si, ci, cap):
     return free + need * per_watt
 
 
-def _heater_kernel(ad, drive, bq, sp_next, x, si, gain, cap, floor, heat, short):
+def _heater_kernel(ad, drive, bq, sp_next, x, si, gain, cap, floor, a_row, hold_base, b_heat, heat, short):
     """Clipped deadbeat heater, step by step; fills ``heat`` and ``short`` in place."""
     n = x.shape[0]
     xn = np.empty(n)
@@ -622,7 +625,14 @@ def _heater_kernel(ad, drive, bq, sp_next, x, si, gain, cap, floor, heat, short)
             q = floor
         elif need > cap:
             q = cap
-            short[k] = need - cap
+            # Shortfall is what the heater lacks to *hold* the setpoint from the present
+            # state, not the one-step boost a deadbeat recovery would ask for.
+            hold = hold_base[k] + a_row[si] * sp_next[k]
+            for j in range(n):
+                if j != si:
+                    hold += a_row[j] * x[j]
+            hold = -hold / b_heat
+            short[k] = max(0.0, min(need, hold) - cap)
         else:
             q = need
         heat[k] = q
@@ -638,13 +648,27 @@ except ImportError:  # pragma: no cover - numba is a declared dependency
     pass
 
 
-def _heater_loop(ad, b0, b1, u_ext, sp_ext, x, si, ci, cap, floor=0.0):
+def _tall_product(u, b):
+    """``u @ b.T`` for tall ``u`` and a small ``b`` without BLAS, whose threads only slow
+    such thin products down on a busy machine."""
+    out = np.zeros((u.shape[0], b.shape[0]))
+    for j in range(b.shape[1]):
+        if np.any(b[:, j]):
+            out += u[:, j, None] * b[None, :, j]
+    return out
+
+
+def _heater_loop(ad, b0, b1, u_ext, sp_ext, x, si, ci, cap, floor, a_row, b_row):
     n_rows = u_ext.shape[0] - 1
     heat = np.zeros(n_rows)
     short = np.zeros(n_rows)
-    drive = np.ascontiguousarray(u_ext[:-1] @ b0.T + u_ext[1:] @ b1.T)
+    drive = np.ascontiguousarray(_tall_product(u_ext[:-1], b0) + _tall_product(u_ext[1:], b1))
+    b_other = np.array(b_row, dtype=float)
+    b_other[ci] = 0.0
+    hold_base = np.ascontiguousarray(_tall_product(u_ext[:-1], b_other[None, :])[:, 0])
     _heater_kernel(
         np.ascontiguousarray(ad), drive, np.ascontiguousarray(b0[:, ci]), np.ascontiguousarray(sp_ext[1:]),
-        np.array(x, dtype=float), int(si), float(b0[si, ci]), float(cap), float(floor), heat, short,
+        np.array(x, dtype=float), int(si), float(b0[si, ci]), float(cap), float(floor),
+        np.ascontiguousarray(a_row, dtype=float), hold_base, float(b_row[ci]), heat, short,
     )
     return heat, short
