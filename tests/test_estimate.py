@@ -1,0 +1,180 @@
+"""Calibration: start values, recovery of known parameters, honest intervals, fine homes.
+
+Every check here is against something outside the estimator: an analytic solution, data
+simulated from known parameters, or the exact steady state and modes of a much finer network
+(thermorc.synthetic, checked in tests/test_synthetic.py against ISO 6946 and the plane-wall
+solution).
+"""
+
+import math
+import warnings
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from thermorc import estimate
+from thermorc.errors import InputError, ThermorcWarning
+from thermorc.kalman import process_noise
+from thermorc.network import Network
+from thermorc.simulate import discretise, simulate
+
+TRUE_2R2C = dict(
+    r_indoor_envelope_k_per_w=0.001,
+    r_envelope_outdoor_k_per_w=0.005,
+    c_indoor_j_per_k=4e6,
+    c_envelope_j_per_k=3e7,
+    solar_aperture_m2=3.0,
+)
+
+
+def stochastic_log(seed, days=21, step_s=900.0, process_sd=(2e-4, 2e-5), meas_sd=0.05, params=TRUE_2R2C, gains_w=300.0):
+    """A log simulated from a 2R2C itself, with process and measurement noise.
+
+    The same exact discretisation as the estimator (first-order hold for outdoor temperature,
+    zero-order hold for heat) and Van Loan's process-noise integral (check-values.md sec. 9).
+    """
+    rng = np.random.default_rng(seed)
+    net = Network.from_preset("2R2C", params)
+    space = net.state_space()
+    n = int(days * 86400 / step_s)
+    ad, b0z, _ = discretise(space.a, space.b, step_s, "zoh")
+    _, b0f, b1f = discretise(space.a, space.b, step_s, "foh")
+    b0 = b0z.copy()
+    b0[:, 0] = b0f[:, 0]
+    b1 = np.zeros_like(b0)
+    b1[:, 0] = b1f[:, 0]
+    _, q_d = process_noise(space.a, np.asarray(process_sd) ** 2, step_s)
+    chol = np.linalg.cholesky(q_d)
+    index = pd.date_range("2025-01-01", periods=n, freq=pd.Timedelta(seconds=step_s), tz="UTC")
+    hours = np.arange(n) * step_s / 3600
+    per_day = int(86400 / step_s)
+    outdoor = 2 + 5 * np.sin(2 * np.pi * (hours - 15) / 24) + np.cumsum(rng.normal(0, 0.1, n))
+    ghi = np.clip(500 * np.sin(2 * np.pi * (hours % 24 - 7) / 20), 0, None) * np.repeat(rng.uniform(0.2, 1, days + 1), per_day)[:n]
+    heat = np.repeat(rng.choice([0.0, 2000.0, 5000.0], n // 4 + 1), 4)[:n]
+    u = np.column_stack([outdoor, heat, ghi, np.full(n, gains_w)])
+    u_next = np.vstack([u[1:], u[-1:]])
+    x = np.array([19.0, 12.0])
+    states = np.empty((n, 2))
+    for k in range(n):
+        states[k] = x
+        x = ad @ x + b0 @ u[k] + b1 @ u_next[k] + chol @ rng.standard_normal(2)
+    y = states[:, 0] + rng.normal(0, meas_sd, n)
+    log = pd.DataFrame({"indoor_c": y, "heating_w": heat, "outdoor_c": outdoor, "ghi_w_m2": ghi}, index=index)
+    return log, net, states
+
+
+def test_energy_balance_start_recovers_ua_aperture_and_gains():
+    # Steady daily balance Q = UA dT - A G - gains holds exactly for steady days (first law);
+    # the linear least squares must return the three numbers used to make the data.
+    index = pd.date_range("2025-01-01", periods=20 * 96, freq="15min", tz="UTC")
+    rng = np.random.default_rng(3)
+    day = np.repeat(np.arange(20), 96)
+    outdoor = np.repeat(rng.uniform(-8, 8, 20), 96)
+    ghi = np.repeat(rng.uniform(20, 200, 20), 96)
+    indoor = np.full(len(index), 20.0)
+    heating = 180.0 * (indoor - outdoor) - 4.0 * ghi - 350.0
+    frame = pd.DataFrame({"indoor_c": indoor, "heating_w": heating, "outdoor_c": outdoor, "ghi_w_m2": ghi}, index=index)
+    start = estimate.energy_balance_start(estimate.calibration_data(frame))
+    assert start["ua_w_per_k"] == pytest.approx(180.0, rel=1e-9)
+    assert start["aperture_m2"] == pytest.approx(4.0, rel=1e-6)
+    assert start["gains_w"] == pytest.approx(350.0, rel=1e-6)
+    assert day.max() + 1 == start["n_days"]
+
+
+def test_free_float_decay_gives_rc():
+    # Heating off at night: T(t) - T_out = (T0 - T_out) exp(-t/RC), the lumped-capacitance
+    # solution (Incropera et al., Fundamentals of Heat and Mass Transfer, ch. 5).
+    net = Network.from_preset("1R1C", r_indoor_outdoor_k_per_w=0.005, c_indoor_j_per_k=1.2e7)
+    index = pd.date_range("2025-01-01", periods=6 * 288, freq="5min", tz="UTC")
+    hours = index.hour
+    heat = np.where((hours >= 6) & (hours < 22), 4000.0, 0.0)
+    inputs = pd.DataFrame({"outdoor_c": 0.0, "heating_w": heat, "solar_w_m2": 0.0, "internal_w": 0.0}, index=index)
+    sim = simulate(net, inputs, x0=[20.0])
+    log = pd.DataFrame({"indoor_c": sim.temperatures_c["indoor"], "heating_w": heat, "outdoor_c": 0.0}, index=index)
+    tau = estimate.free_float_time_constant_s(estimate.calibration_data(log))
+    assert tau == pytest.approx(0.005 * 1.2e7, rel=1e-6)
+
+
+def test_calibration_recovers_parameters_of_its_own_model():
+    # Data made from a known 2R2C (plus noise): the truth must lie inside conf intervals and
+    # the estimates close to it (simulate-and-fit check, as statsmodels tests its estimators).
+    log, net, _ = stochastic_log(seed=11)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log, model="2R2C")
+    ua = net.heat_loss_coefficient_w_per_k()["total"]
+    tau_h = net.time_constants_s()[0] / 3600
+    assert res.heat_loss_coefficient_w_per_k == pytest.approx(ua, rel=0.02)
+    assert res.time_constants_h[0] == pytest.approx(tau_h, rel=0.05)
+    lo, hi = res.intervals["heat_loss_coefficient_w_per_k"]
+    assert lo < ua < hi
+    assert res.parameters["solar_aperture_m2"] == pytest.approx(3.0, rel=0.15)
+    assert res.parameters["internal_gains_w"] == pytest.approx(300.0, abs=60.0)
+    for key in ("rmse_k", "cv_rmse_pct", "nmbe_pct", "n_samples"):
+        assert key in res.fit
+    # The fit is about as good as the measurement noise allows (0.05 K white).
+    assert 0.04 < res.fit["rmse_k"] < 0.08
+
+
+@pytest.mark.slow
+def test_intervals_cover_the_truth_about_95_percent():
+    # Honest uncertainty: over many synthetic homes made from known parameters with process
+    # and measurement noise, the 95 % intervals must contain the truth about 95 % of the time.
+    # With 40 replicates the binomial standard error is 3.4 points, so 85-100 % is accepted.
+    net = Network.from_preset("2R2C", TRUE_2R2C)
+    ua = net.heat_loss_coefficient_w_per_k()["total"]
+    tau_h = net.time_constants_s()[0] / 3600
+    hits_ua = hits_tau = 0
+    replicates = 40
+    for seed in range(replicates):
+        log, _, _ = stochastic_log(seed)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ThermorcWarning)
+            res = estimate.calibrate(log, model="2R2C", energy_metrics=False)
+        lo, hi = res.intervals["heat_loss_coefficient_w_per_k"]
+        hits_ua += lo <= ua <= hi
+        lo, hi = res.intervals["time_constant_1_h"]
+        hits_tau += lo <= tau_h <= hi
+    assert 0.85 <= hits_ua / replicates <= 1.0
+    assert 0.85 <= hits_tau / replicates <= 1.0
+
+
+def test_filter_state_recovers_the_hidden_envelope_temperature():
+    # Kalman (1960) filtering of the measured indoor temperature must find the unmeasured
+    # envelope node far better than a steady-state guess.
+    log, net, states = stochastic_log(seed=5, days=10)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log, model="2R2C", energy_metrics=False)
+    cut = len(log) // 2
+    x = estimate.filter_state(res, log.iloc[:cut])
+    assert abs(x[1] - states[cut, 1]) < 0.3
+    assert abs(x[0] - states[cut, 0]) < 0.3
+
+
+def test_data_that_cannot_identify_a_model_is_refused():
+    index = pd.date_range("2025-01-01", periods=10 * 288, freq="5min", tz="UTC")
+    flat = pd.DataFrame({"indoor_c": 20.0, "heating_w": np.tile([0.0, 3000.0], 5 * 288), "outdoor_c": 0.0}, index=index)
+    with pytest.raises(InputError, match="hardly varies"):
+        estimate.calibrate(flat, model="2R2C")
+    steady_heat = flat.assign(indoor_c=20 + np.sin(np.arange(len(index)) / 50), heating_w=2000.0)
+    with pytest.raises(InputError, match="does not vary"):
+        estimate.calibrate(steady_heat, model="1R1C")
+    short = flat.iloc[:288].assign(indoor_c=20 + np.sin(np.arange(288) / 20))
+    with pytest.raises(InputError, match="needs at least"):
+        estimate.calibrate(short, model="3R2C")
+
+
+def test_auto_compares_the_three_presets_and_keeps_the_table():
+    log, net, _ = stochastic_log(seed=2, days=21)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate_auto(log)
+    table = res.extras["model_comparison"]["rows"]
+    assert [row["model"] for row in table] == ["1R1C", "2R2C", "3R2C"]
+    # The data come from a 2R2C: 1R1C must predict the held-out tail clearly worse.
+    by_model = {row["model"]: row for row in table}
+    assert by_model["1R1C"]["holdout_rmse_k"] > 1.5 * by_model["2R2C"]["holdout_rmse_k"]
+    assert res.model in ("2R2C", "3R2C")
+    assert sum(row["chosen"] for row in table) == 1
