@@ -310,17 +310,44 @@ class CalibrationResult:
         return cls.from_dict(data, path=str(path))
 
     def summary(self):
-        """A short plain-text summary for people."""
-        lines = [
-            f"model {self.model}",
-            f"heat loss coefficient {self.heat_loss_coefficient_w_per_k:.1f} W/K",
-            "time constants " + ", ".join(f"{t:.1f}" for t in self.time_constants_h) + " h",
-            f"total capacitance {self.capacitance_j_per_k / 1e6:.1f} MJ/K",
-        ]
-        if self.fit:
+        """A short plain-text summary for people (units in the labels)."""
+
+        def interval(key, scale=1.0, fmt="{:.1f}"):
+            lo, hi = (self.intervals.get(key) or [math.nan, math.nan])[:2]
+            if lo is None or hi is None or not (math.isfinite(lo) and math.isfinite(hi)):
+                return ""
+            return f"  (95 % interval {fmt.format(lo * scale)} to {fmt.format(hi * scale)})"
+
+        chosen = self.extras.get("model_comparison", {}).get("chosen")
+        lines = [f"model                   {self.model}" + ("  (chosen by comparing 1R1C, 2R2C, 3R2C)" if chosen else "")]
+        lines.append(
+            f"heat loss coefficient   {self.heat_loss_coefficient_w_per_k:.1f} W/K"
+            + interval("heat_loss_coefficient_w_per_k")
+        )
+        for i, tau in enumerate(self.time_constants_h):
+            label = "time constants" if i == 0 else ""
+            lines.append(f"{label:<24}{tau:.1f} h" + interval(f"time_constant_{i + 1}_h"))
+        lines.append(f"total heat capacity     {self.capacitance_j_per_k / 1e6:.1f} MJ/K")
+        aperture = self.parameters.get("solar_aperture_m2")
+        if aperture:
+            lines.append(f"solar aperture          {aperture:.2f} m² on {self.solar_input}" + interval("solar_aperture_m2", fmt="{:.2f}"))
+        for key, label in (("internal_gains_w", "unlogged gains"), ("internal_gains_day_w", "unlogged gains, day"),
+                           ("internal_gains_night_w", "unlogged gains, night")):
+            if key in self.parameters:
+                lines.append(f"{label:<24}{self.parameters[key]:.0f} W")
+        fit = self.fit
+        if fit:
             lines.append(
-                "fit: " + ", ".join(f"{k} {v:.3g}" if isinstance(v, float) else f"{k} {v}" for k, v in self.fit.items())
+                f"fit                     indoor temperature RMSE {fit.get('rmse_k', math.nan):.3f} K, "
+                f"bias {fit.get('bias_k', math.nan):+.3f} K, {fit.get('n_samples', 0)} samples"
             )
+            cv, nmbe = fit.get("cv_rmse_pct"), fit.get("nmbe_pct")
+            if isinstance(cv, float) and math.isfinite(cv):
+                verdict = "meets" if cv <= 30.0 and abs(nmbe) <= 10.0 else "misses"
+                lines.append(
+                    f"                        hourly heating energy CV(RMSE) {cv:.1f} % (limit 30 %), NMBE {nmbe:+.1f} % "
+                    f"(limit ±10 %): {verdict} ASHRAE Guideline 14"
+                )
         return "\n".join(lines)
 
 
