@@ -16,7 +16,7 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
-    epilog="Example: thermorc inspect site_log.csv --tz America/New_York",
+    epilog="Start with: thermorc demo --out demo_out (the whole job on invented demo data), then see docs/user-guide.md",
 )
 
 
