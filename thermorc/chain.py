@@ -129,10 +129,10 @@ def prepare_log(
     need_sun = "ghi_w_m2" not in frame.columns or frame["ghi_w_m2"].isna().all()
     if weather_path is not None:
         year = int(frame.index[0].year)
-        weather, weather_meta = read_weather(weather_path, tz=str(frame.index.tz), coerce_year=year)
+        weather, weather_meta = read_weather(weather_path, tz=frame.index.tz, coerce_year=year)
         if weather_meta.get("source_format") in ("tmy3", "epw") and frame.index[-1].year != year:
             # A log across New Year needs the typical year twice.
-            nxt, _ = read_weather(weather_path, tz=str(frame.index.tz), coerce_year=year + 1)
+            nxt, _ = read_weather(weather_path, tz=frame.index.tz, coerce_year=year + 1)
             weather = pd.concat([weather, nxt]).sort_index()
             weather = weather[~weather.index.duplicated()]
         on_grid = align_weather(weather, frame.index, path=str(weather_path))

@@ -120,7 +120,7 @@ def csv_frame(text, path, delimiter=",", skip_rows=0):
             raise InputError(
                 f"{match.group(2)} fields (expected {expected.group(1)}, as in the header)",
                 path=path,
-                row=int(match.group(1)) + skip_rows,
+                row=int(match.group(1)),  # pandas counts the skipped lines too
             ) from None
         raise InputError(f"cannot parse as CSV ({' '.join(str(exc).split())})", path=path) from None
     frame.columns = [str(c).strip() for c in frame.columns]
@@ -552,6 +552,10 @@ def load_column_map(column_map):
             if key in table and table[key] not in choices:
                 raise bad(f"{show(table[key])} is not allowed (expected one of {', '.join(choices)})",
                           f"{section}.{key}")
+        for key, value in table.items():
+            problem = _option_problem(key, value)
+            if problem:
+                raise bad(f"{show(value)} {problem}", f"{section}.{key}")
         setattr(cmap, section, dict(table))
     if "tz" in cmap.time:
         zone(cmap.time["tz"], source)
@@ -579,6 +583,27 @@ def load_column_map(column_map):
     for k, stage in enumerate(stages):
         cmap.heating.append(_check_stage(stage, k, source))
     return cmap
+
+
+def _option_problem(key, value):
+    """What is wrong with the type of a [time] or [file] option, or None."""
+    if key in ("column", "format", "tz", "encoding") + tuple(_CHOICES):
+        return None if isinstance(value, str) and value else "is not allowed (expected non-empty text)"
+    if key in ("delimiter", "decimal"):
+        return None if isinstance(value, str) and len(value) == 1 else "is not allowed (expected one character)"
+    if key == "skip_rows":
+        ok = isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= 1_000_000
+        return None if ok else "is not allowed (expected a whole number of rows >= 0)"
+    if key == "interval_s":
+        ok = isinstance(value, (int, float)) and not isinstance(value, bool) and 0 < value <= 86400
+        return None if ok else "is not allowed (expected seconds, 0 < interval_s <= 86400)"
+    if key == "sort":
+        return None if isinstance(value, bool) else "is not allowed (expected true or false)"
+    if key == "sheet":
+        ok = (isinstance(value, str) and value) or (isinstance(value, int) and not isinstance(value, bool)
+                                                     and value >= 0)
+        return None if ok else "is not allowed (expected a sheet name or a 0-based sheet number)"
+    return None
 
 
 def _check_unit(target, unit, source, key):
@@ -1093,14 +1118,41 @@ def read_weather(path, tz=None, coerce_year=None):
         else:
             raw, meta = pvlib.iotools.read_epw(path, coerce_year=None)
     except Exception as exc:  # noqa: BLE001 - the pvlib readers raise many types on bad files
+        # pandas quotes a bad date cell but not its row: find the first line that starts with it.
+        cell = re.search(r'time data "([^"]*)"', str(exc))
+        row = None
+        if cell:
+            with open(path, encoding="latin-1") as handle:
+                row = next((i + 1 for i, line in enumerate(handle) if line.startswith(cell.group(1) + ",")), None)
         raise InputError(f"cannot read as {kind.upper()} ({type(exc).__name__}: "
-                         f"{' '.join(str(exc).split())[:120]})", path=path) from None
+                         f"{' '.join(str(exc).split())[:120]})", path=path, row=row) from None
+    n = len(raw)
+    if n not in (8760, 8784):
+        raise InputError(f"has {n} hourly rows (expected 8760 for a typical year)", path=path)
+    # File line of data row k: TMY3 has 2 header lines, EPW 8 (the formats' manuals).
+    first_row = 3 if kind == "tmy3" else 9
     if kind == "tmy3":
         # The file's own date column names the day each hour (01:00 ... 24:00) belongs to.
-        dates = pd.to_datetime(raw["Date (MM/DD/YYYY)"], format="%m/%d/%Y")
+        dates = pd.to_datetime(raw["Date (MM/DD/YYYY)"], format="%m/%d/%Y", errors="coerce")
+        if dates.isna().any():
+            i = int(np.flatnonzero(dates.isna().to_numpy())[0])
+            raise InputError(f"{show(raw['Date (MM/DD/YYYY)'].iloc[i])} is not a date (expected MM/DD/YYYY)",
+                             path=path, row=first_row + i, column="Date (MM/DD/YYYY)")
         years, months, days = (dates.dt.year.to_numpy(), dates.dt.month.to_numpy(), dates.dt.day.to_numpy())
     else:
         years, months, days = raw["year"].to_numpy(), raw["month"].to_numpy(), raw["day"].to_numpy()
+    limits = {"temp_air": (-90.0, 60.0), "ghi": (-50.0, 2000.0), "dni": (-50.0, 1500.0), "dhi": (-50.0, 1000.0),
+              "wind_speed": (0.0, 120.0)}
+    for src, (lo, hi) in limits.items():
+        v = pd.to_numeric(raw[src], errors="coerce").to_numpy(dtype=float)
+        bad_cell = np.isnan(v) & raw[src].notna().to_numpy()
+        with np.errstate(invalid="ignore"):
+            bad_cell |= (v < lo) | (v > hi)
+        if bad_cell.any():
+            i = int(np.flatnonzero(bad_cell)[0])
+            raise InputError(f"{show(raw[src].iloc[i])} is not a number in the plausible range (expected {lo:g} "
+                             f"to {hi:g})", path=path, row=first_row + i, column=src)
+        raw[src] = v
     uniq_years = sorted(set(int(y) for y in years))
     year = coerce_year
     if year is None:
@@ -1112,10 +1164,12 @@ def read_weather(path, tz=None, coerce_year=None):
             )
     else:
         notes.append(f"rows coerced to the year {year}")
-    offset = _dt.timezone(_dt.timedelta(hours=float(meta["TZ"])))
-    n = len(raw)
-    if n not in (8760, 8784):
-        raise InputError(f"has {n} hourly rows (expected 8760 for a typical year)", path=path)
+    try:
+        offset = _dt.timezone(_dt.timedelta(hours=float(meta["TZ"])))
+        float(meta["latitude"]), float(meta["longitude"]), float(meta.get("altitude", 0.0))
+    except (TypeError, ValueError, KeyError, OverflowError):
+        raise InputError("header has no valid time zone, latitude, longitude or altitude (expected numbers)",
+                         path=path, row=1) from None
     start = pd.Timestamp(year=int(year), month=1, day=1, tz=offset)
     index = pd.date_range(start, periods=n, freq="h", name="time", unit="ns")
     if not ((months == index.month) & (days == index.day)).all():

@@ -1,0 +1,328 @@
+"""
+Hostile and malformed inputs for every command that reads a file.
+
+Each case must end with exit code 2 and exactly one stderr line, "thermorc: error: FILE, row N,
+column 'x': ..." (the contract of thermorc.errors and the CLI), with no traceback, no new or
+half-written file in the output folder and an existing output left byte for byte as it was
+(write to a temporary file, then os.replace: common practice). The formula-injection cases
+check that text reaching a CSV output comes out escaped (OWASP, "CSV Injection",
+https://owasp.org/www-community/attacks/CSV_Injection).
+
+The corpus is generated here, not stored, to keep the repository small.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import pathlib
+
+import pytest
+
+from tests.hardening.conftest import (
+    DATA, EXAMPLES, GOOD_LOG, GOOD_WEATHER, TMY3, assert_one_line_error, runner, snapshot, write_good_result,
+)
+from thermorc.cli import app
+
+DIR = object()  # the hostile "file" is a folder
+MISSING = object()  # the hostile "file" does not exist
+
+# File-level problems: there is no row or column to name, the file itself is the place.
+GENERIC = [
+    ("empty", b"", False),
+    ("blank_lines", b"\n \n\t\n", False),
+    ("nul_bytes", b"time,indoor_c\n\x00\x00\x00\x00", False),
+    ("utf16_bom", "time,indoor_c,heating_w\n2024-01-10T00:00Z,20,0\n".encode("utf-16"), False),
+    ("utf16le_no_bom", "time,indoor_c,heating_w\n2024-01-10T00:00Z,20,0\n".encode("utf-16-le"), False),
+    ("random_binary", bytes((i * 151 + 7) % 256 for i in range(4096)), False),
+    ("zip_signature", b"PK\x03\x04" + bytes(60), False),
+    ("directory", DIR, False),
+]
+
+
+def _log(text=GOOD_LOG, row=None, column=None, value=None):
+    """GOOD_LOG with one cell replaced (row = file line, header = 1)."""
+    lines = text.splitlines()
+    if row is not None:
+        header = lines[0].split(",")
+        cells = lines[row - 1].split(",")
+        cells[header.index(column)] = value
+        lines[row - 1] = ",".join(cells)
+    return "\n".join(lines) + "\n"
+
+
+_HDR = GOOD_LOG.splitlines()[0]
+_BODY = GOOD_LOG.splitlines()[1:]
+
+LOG_CASES = [
+    ("header_only", _HDR + "\n", r"row 1"),
+    ("missing_indoor", GOOD_LOG.replace("indoor_c", "inside"), r"column 'indoor_c'"),
+    ("text_in_indoor", _log(row=5, column="indoor_c", value="warm"), r"row 5, column 'indoor_c'"),
+    ("formula_eq", _log(row=3, column="heating_w", value="=cmd|' /C calc'!A0"), r"row 3, column 'heating_w'"),
+    ("formula_at", _log(row=4, column="indoor_c", value="@SUM(A1:A9)"), r"row 4, column 'indoor_c'"),
+    ("formula_minus", _log(row=6, column="heating_w", value="-2+3+cmd|' /C calc'!A0"), r"row 6, column 'heating_w'"),
+    ("inf_heating", _log(row=7, column="heating_w", value="inf"), r"row 7, column 'heating_w'"),
+    ("minus_inf_indoor", _log(row=7, column="indoor_c", value="-inf"), r"row 7, column 'indoor_c'"),
+    ("huge_heating", _log(row=8, column="heating_w", value="1e308"), r"row 8, column 'heating_w'"),
+    ("overflow_heating", _log(row=8, column="heating_w", value="1e999"), r"row 8, column 'heating_w'"),
+    ("negative_heating", _log(row=9, column="heating_w", value="-350"), r"row 9, column 'heating_w'"),
+    ("indoor_500c", _log(row=10, column="indoor_c", value="500"), r"row 10, column 'indoor_c'"),
+    ("indoor_below_absolute_zero", _log(row=10, column="indoor_c", value="-300"), r"row 10, column 'indoor_c'"),
+    ("outdoor_1e308", _log(row=11, column="outdoor_c", value="1e308"), r"row 11, column 'outdoor_c'"),
+    ("year_1066", _log(row=4, column="time", value="1066-10-14T09:00-00:00"), r"row 4, column 'time'"),
+    ("year_9999", _log(row=4, column="time", value="9999-12-31T23:59-05:00"), r"row 4, column 'time'"),
+    ("unparseable_time", _log(row=12, column="time", value="yesterday"), r"row 12, column 'time'"),
+    ("empty_time", _log(row=12, column="time", value=""), r"row 12, column 'time'"),
+    ("offset_25h", _log(row=5, column="time", value="2024-01-10T01:00+25:00"), r"row 5, column 'time'"),
+    ("epoch_integer_time", _log(row=5, column="time", value="1704866400"), r"row 5, column 'time'"),
+    ("duplicated_time_other_values", "\n".join([_HDR, *_BODY[:3], _BODY[2].replace(",1000,", ",7,").replace(
+        "20.2", "21.5"), *_BODY[3:]]) + "\n", r"row 5, column 'time'"),
+    ("unsorted_times", "\n".join([_HDR, _BODY[1], _BODY[0], *_BODY[2:]]) + "\n", r"row 3, column 'time'"),
+    ("ragged_row", "\n".join([_HDR, *_BODY[:4], _BODY[4] + ",9,9", *_BODY[5:]]) + "\n", r"row 6"),
+    ("naive_times_no_tz", GOOD_LOG.replace("-05:00", ""), r"column 'time'"),
+    ("semicolon_without_map", GOOD_LOG.replace(",", ";"), r"row 1"),
+    ("huge_cell", _log(row=3, column="indoor_c", value="9" * 200_000), r"row 3, column 'indoor_c'"),
+    ("gigantic_header_no_required", ",".join(f"c{i}" for i in range(20_000)) + "\n" + ",".join(["1"] * 20_000)
+     + "\n", r"row 1"),
+    ("gigantic_header_ragged", _HDR + "," + ",".join(f"x{i}" for i in range(20_000)) + "\n" + "\n".join(_BODY)
+     + "\n" + ",".join(["1"] * 30_000) + "\n", r"row \d+"),
+    ("two_rows_only", "\n".join([_HDR, *_BODY[:2]]) + "\n", None),  # the whole file is the place
+]
+
+# Logs that only a reader of that format sees: a damaged workbook and a damaged Parquet file.
+LOG_BINARY_CASES = [
+    ("fake_xlsx", b"PK\x03\x04 not really a workbook", ".xlsx"),
+    ("empty_xlsx", b"", ".xlsx"),
+    ("fake_parquet", b"PAR1garbagegarbagePAR1", ".parquet"),
+    ("csv_named_parquet", GOOD_LOG.encode(), ".parquet"),
+]
+
+
+def _put(path, content):
+    if content is DIR:
+        path.mkdir()
+    elif content is MISSING:
+        pass
+    elif isinstance(content, bytes):
+        path.write_bytes(content)
+    else:
+        path.write_text(content, encoding="utf-8")
+    return path
+
+
+def _outputs(tmp_path, existing):
+    """The output folder, with a sentinel in every output file when ``existing``."""
+    out = tmp_path / "out"
+    out.mkdir()
+    if existing:
+        for name in ("out.json", "out.csv", "summary.json", "out.parquet", "report-2023-02.html"):
+            (out / name).write_bytes(b"SENTINEL: an earlier run's output\n")
+    return out
+
+
+def _check(tmp_path, argv, name, place, needle):
+    for existing in (False, True):
+        out = tmp_path / "out"
+        if out.exists():
+            import shutil
+
+            shutil.rmtree(out)
+        _outputs(tmp_path, existing)
+        before = snapshot(out)
+        result = runner.invoke(app, [a.replace("{OUT}", str(out)) for a in argv])
+        line = assert_one_line_error(result, name, place=place, needle=needle)
+        assert snapshot(out) == before, "the output folder changed after a failed run"
+    return line
+
+
+# ------------------------------------------------------------------------------------------
+# Logs: inspect, calibrate, simulate, report (through a home file)
+# ------------------------------------------------------------------------------------------
+
+def _log_argv(tmp_path, bad, k):
+    which = k % 4
+    if which == 0:
+        return ["inspect", str(bad), "--out", "{OUT}/out.json"]
+    if which == 1:
+        return ["calibrate", str(bad), "--out", "{OUT}/out.json", "--model", "1R1C"]
+    if which == 2:
+        result = write_good_result(tmp_path / "result.json")
+        return ["simulate", str(result), "--log", str(bad), "--out", "{OUT}/out.csv"]
+    home = tmp_path / "home.toml"
+    home.write_text(f'name = "invented"\n[log]\nfile = "{bad.name}"\n', encoding="utf-8")
+    return ["report", str(home), "--month", "2024-01", "--out", "{OUT}"]
+
+
+ALL_LOG = ([(n, c, p, None, ".csv") for n, c, p in GENERIC]
+           + [(n, c, needle is not None, needle, ".csv") for n, c, needle in LOG_CASES]
+           + [(n, c, False, None, ext) for n, c, ext in LOG_BINARY_CASES])
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(ALL_LOG)), ids=[c[0] for c in ALL_LOG])
+def test_hostile_log(tmp_path, k, case):
+    name, content, place, needle, ext = case
+    if content is DIR and k % 4 in (1, 2):
+        k = 0  # typer refuses a folder for calibrate and simulate itself (exists=True, dir_okay=False)
+    bad = _put(tmp_path / f"hostile_log{ext}", content)
+    _check(tmp_path, _log_argv(tmp_path, bad, k), bad.name, place, needle)
+
+
+def _assert_case(tmp_path, k, case, argv_for, stem, ext):
+    name, content, needle = case[:3]
+    bad = _put(tmp_path / f"{stem}{ext}", content)
+    _check(tmp_path, argv_for(tmp_path, bad, k), bad.name, needle is not None, needle)
+
+
+def _generic(ext=".toml"):
+    return [(n, c, None) for n, c, _ in GENERIC]
+
+
+# ------------------------------------------------------------------------------------------
+# Column maps: inspect --map, calibrate --map, simulate --map (with the invented logger export)
+# ------------------------------------------------------------------------------------------
+
+GOOD_MAP = (DATA / "invented_logger_map.toml").read_text(encoding="utf-8")
+
+
+def _map(old, new):
+    assert old in GOOD_MAP
+    return GOOD_MAP.replace(old, new, 1)
+
+
+MAP_CASES = _generic() + [
+    ("truncated_toml", GOOD_MAP[: GOOD_MAP.index("[columns]") + 5], None),  # "at end of document"
+    ("unclosed_string", _map('column = "Date/Time"', 'column = "Date/Time'), r"row \d+"),
+    ("unknown_section", GOOD_MAP + "\n[extras]\nx = 1\n", r"column 'extras'"),
+    ("unknown_time_key", _map('[time]\n', '[time]\nzone = "UTC"\n'), r"column 'time.zone'"),
+    ("unknown_file_key", _map('[file]\n', '[file]\nquote = "x"\n'), r"column 'file.quote'"),
+    ("bad_tz", _map('tz = "America/New_York"', 'tz = "Mars/Olympus_Mons"'), None),
+    ("path_traversal_tz", _map('tz = "America/New_York"', 'tz = "../../../../etc/passwd"'), None),
+    ("interval_wrong", _map('interval = "start"', 'interval = "middle"'), r"column 'time.interval'"),
+    ("interval_number", _map('interval = "start"', 'interval = 5'), r"column 'time.interval'"),
+    ("columns_not_table", _map('[columns]\n', '[columns_x]\n').replace("[columns_x]", "columns = 3\n[columns_x]"),
+     r"column '"),
+    ("unknown_target", _map('[columns]\n', '[columns]\nbasement_c = "Inside (F)"\n'), r"column 'columns.basement_c'"),
+    ("unknown_unit", _map('unit = "degF" }', 'unit = "furlongs" }'), r"column 'columns.indoor_c.unit'"),
+    ("unit_number", _map('unit = "degF" }', 'unit = 7 }'), r"column 'columns.indoor_c.unit'"),
+    ("stage_without_column", _map('column = "Stage 1 run (s)"\n', ''), r"column 'heating\[0\]'"),
+    ("rating_negative", _map('rating = 40000', 'rating = -40000'), r"column 'heating\[0\].rating'"),
+    ("rating_nan", _map('rating = 40000', 'rating = nan'), r"column 'heating\[0\].rating'"),
+    ("rating_inf", _map('rating = 40000', 'rating = inf'), r"column 'heating\[0\].rating'"),
+    ("rating_text", _map('rating = 40000', 'rating = "lots"'), r"column 'heating\[0\].rating'"),
+    ("efficiency_zero", _map('efficiency = 0.95', 'efficiency = 0.0'), r"column 'heating\[0\].efficiency'"),
+    ("efficiency_1e308", _map('efficiency = 0.95', 'efficiency = 1e308'), r"column 'heating\[0\].efficiency'"),
+    ("cop_negative", _map('[10.0, 4.0]', '[10.0, -4.0]'), r"column 'heating\[1\].cop'"),
+    ("cop_ragged", _map('[10.0, 4.0]', '[10.0]'), r"column 'heating\[1\].cop'"),
+    ("cop_same_temps", _map('[-10.0, 2.0]', '[10.0, 2.0]'), r"column 'heating\[1\].cop'"),
+    ("runtime_unit_unknown", _map('runtime = "s"', 'runtime = "fortnights"'), r"column 'heating\[0\].runtime'"),
+    ("heating_twice", _map('[columns]\n', '[columns]\nheating_w = "Heat pump (kW)"\n'), r"column 'heating'"),
+    ("skip_rows_text", _map('[file]\n', '[file]\nskip_rows = "three"\n'), r"column 'file.skip_rows'"),
+    ("skip_rows_negative", _map('[file]\n', '[file]\nskip_rows = -4\n'), r"column 'file.skip_rows'"),
+    ("encoding_number", _map('[file]\n', '[file]\nencoding = 8\n'), r"column 'file.encoding'"),
+    ("delimiter_empty", _map('delimiter = ";"', 'delimiter = ""'), r"column 'file.delimiter'"),
+    ("time_format_number", _map('format = "%d.%m.%Y %H:%M"', 'format = 12'), r"column 'time.format'"),
+    ("time_column_number", _map('column = "Date/Time"', 'column = 5'), r"column 'time.column'"),
+    ("sort_text", _map('[time]\n', '[time]\nsort = "sometimes"\n'), r"column 'time.sort'"),
+    ("interval_s_negative", _map('[time]\n', '[time]\ninterval_s = -300\n'), r"column 'time.interval_s'"),
+]
+
+
+def _map_argv(tmp_path, bad, k):
+    log = str(DATA / "invented_logger.csv")
+    which = k % 3
+    if which == 0:
+        return ["inspect", log, "--map", str(bad), "--out", "{OUT}/out.json"]
+    if which == 1:
+        return ["calibrate", log, "--map", str(bad), "--out", "{OUT}/out.json", "--model", "1R1C"]
+    result = write_good_result(tmp_path / "result.json")
+    return ["simulate", str(result), "--log", log, "--map", str(bad), "--out", "{OUT}/out.csv"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(MAP_CASES)), ids=[c[0] for c in MAP_CASES])
+def test_hostile_column_map(tmp_path, k, case):
+    if case[1] is DIR:
+        k = 0
+    _assert_case(tmp_path, k, case, _map_argv, "hostile_map", ".toml")
+
+
+# ------------------------------------------------------------------------------------------
+# Weather files: forecast --weather, setback --weather, calibrate --weather
+# ------------------------------------------------------------------------------------------
+
+_W = GOOD_WEATHER.splitlines()
+_WH = _W[2].split(",")
+
+
+def _weather(row, column, value):
+    lines = list(_W)
+    cells = lines[row - 1].split(",")
+    cells[_WH.index(column)] = value
+    lines[row - 1] = ",".join(cells)
+    return "\n".join(lines) + "\n"
+
+
+TMY3_TEXT = TMY3.read_text(encoding="utf-8")
+_T = TMY3_TEXT.splitlines()
+
+
+def _tmy3(row, col, value):
+    lines = list(_T)
+    cells = next(csv.reader([lines[row - 1]]))
+    cells[col] = value
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="").writerow(cells)
+    lines[row - 1] = buf.getvalue()
+    return "\n".join(lines) + "\n"
+
+
+WEATHER_CASES = [(n, c, None) for n, c, _ in GENERIC] + [
+    ("header_only", "\n".join(_W[:3]) + "\n", r"row 3"),
+    ("missing_ghi", GOOD_WEATHER.replace(",ghi_w_m2", ",sun"), r"column 'ghi_w_m2'"),
+    ("latitude_text", GOOD_WEATHER.replace("# latitude = 36.1", "# latitude = north"), r"row 1, column 'latitude'"),
+    ("outdoor_text", _weather(6, "outdoor_c", "mild"), r"row 6, column 'outdoor_c'"),
+    ("outdoor_nan_text", _weather(6, "outdoor_c", "NaN%"), r"row 6, column 'outdoor_c'"),
+    ("outdoor_1e308", _weather(7, "outdoor_c", "1e308"), r"row 7, column 'outdoor_c'"),
+    ("outdoor_inf", _weather(7, "outdoor_c", "inf"), r"row 7, column 'outdoor_c'"),
+    ("outdoor_below_absolute_zero", _weather(8, "outdoor_c", "-400"), r"row 8, column 'outdoor_c'"),
+    ("ghi_negative_large", _weather(9, "ghi_w_m2", "-999"), r"row 9, column 'ghi_w_m2'"),
+    ("ghi_formula", _weather(9, "ghi_w_m2", "=cmd|' /C calc'!A0"), r"row 9, column 'ghi_w_m2'"),
+    ("ghi_plus_formula", _weather(9, "ghi_w_m2", "+cmd|' /C calc'!A0"), r"row 9, column 'ghi_w_m2'"),
+    ("time_absurd", _weather(10, "time", "0001-01-01T00:00+00:00"), r"row 10, column 'time'"),
+    ("time_garbage", _weather(10, "time", "@now"), r"row 10, column 'time'"),
+    ("time_duplicated", "\n".join(_W[:5] + [_W[4]] + _W[5:]) + "\n", r"row 6, column 'time'"),
+    ("time_unsorted", "\n".join(_W[:3] + [_W[4], _W[3]] + _W[5:]) + "\n", r"row 5, column 'time'"),
+    ("ragged", "\n".join(_W[:6] + [_W[6] + ",1,2,3"] + _W[7:]) + "\n", r"row 7"),
+    ("gigantic_header", "\n".join(_W[:2] + [",".join(f"c{i}" for i in range(20_000))] + _W[3:]) + "\n",
+     r"row 3"),
+    ("tmy3_truncated_header", "\n".join(_T[:1]) + "\n", None),
+    ("tmy3_latitude_text", _T[0].replace(_T[0].split(",")[4], "north", 1) + "\n" + "\n".join(_T[1:]) + "\n", None),
+    ("tmy3_drybulb_text", _tmy3(30, 31, "warm"), r"row 30"),
+    ("tmy3_ghi_1e308", _tmy3(31, 4, "1e308"), r"row 31"),
+    ("tmy3_date_garbage", _tmy3(32, 0, "13/45/1990"), r"row 32"),
+    ("tmy3_rows_missing", "\n".join(_T[:40]) + "\n", None),
+    ("epw_truncated", "LOCATION,Quillhaven (invented),XX,XX,INVENTED,000000,45.37,-90.84,-6.0,420.0\n"
+     "DESIGN CONDITIONS,0\n", None),
+]
+
+
+def _weather_argv(tmp_path, bad, k):
+    result = write_good_result(tmp_path / "result.json")
+    which = k % 3
+    if which == 0:
+        return ["forecast", str(result), "--weather", str(bad), "--out", "{OUT}/out.csv",
+                "--summary", "{OUT}/summary.json", "--draws", "0"]
+    if which == 1:
+        return ["setback", str(result), "--weather", str(bad), "--strategies", str(EXAMPLES / "strategies.toml"),
+                "--out", "{OUT}/out.csv", "--summary", "{OUT}/summary.json"]
+    log = tmp_path / "log.csv"
+    log.write_text(GOOD_LOG.replace(",outdoor_c", "").replace(",2.0\n", "\n"), encoding="utf-8")
+    return ["calibrate", str(log), "--weather", str(bad), "--out", "{OUT}/out.json", "--model", "1R1C"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(WEATHER_CASES)), ids=[c[0] for c in WEATHER_CASES])
+def test_hostile_weather(tmp_path, k, case):
+    if case[1] is DIR:
+        k = 0
+    ext = ".epw" if case[0].startswith("epw") else ".csv"
+    _assert_case(tmp_path, k, case, _weather_argv, "hostile_weather", ext)
