@@ -312,6 +312,12 @@ def calibrate_files(
 
     if isinstance(site, str):
         site = parse_site(site)
+    built = None
+    if construction is not None:
+        from thermorc.construction import read_construction
+
+        # Check every input file before the fit, which can take minutes.
+        built = read_construction(construction)
     prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site, step_s=step_s)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
@@ -331,11 +337,9 @@ def calibrate_files(
             result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path))
     result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
     result.extras["data_quality"] = {"verdict": report.verdict, "supported": list(report.supported)}
-    if construction is not None:
-        from thermorc.construction import read_construction
+    if built is not None:
         from thermorc.iso13790 import plausibility_details
 
-        built = read_construction(construction)
         ua_se = result.std_errors.get("heat_loss_coefficient_w_per_k", float("nan"))
         details = plausibility_details(result.heat_loss_coefficient_w_per_k, result.capacitance_j_per_k, ua_se, built)
         result.extras["plausibility"] = details

@@ -410,13 +410,14 @@ def parse_construction(document, path=None, materials=None):
     rd = _Reader(path)
     rd.unknown(document, _TOP_KEYS, "")
     name = rd.text(document, "name", "name", required=False, default="construction")
-    floor_area = rd.number(document, "floor_area_m2", "floor_area_m2", positive=True)
+    # Upper bounds of one dwelling (common practice): they catch typing errors such as 1e308.
+    floor_area = rd.number(document, "floor_area_m2", "floor_area_m2", positive=True, maximum=1e5)
     if "air_leakage" not in document:
         rd.fail("air_leakage", "missing (expected a table with ach and volume_m3)")
     leak = rd.table(document["air_leakage"], "air_leakage")
     rd.unknown(leak, _LEAK_KEYS, "air_leakage")
     ach = rd.number(leak, "ach", "air_leakage.ach", minimum=0.0, maximum=50.0)
-    volume = rd.number(leak, "volume_m3", "air_leakage.volume_m3", positive=True)
+    volume = rd.number(leak, "volume_m3", "air_leakage.volume_m3", positive=True, maximum=1e6)
     raw_elements = document.get("elements")
     if raw_elements is None:
         rd.fail("elements", "missing (expected one or more [[elements]] tables)")
@@ -454,7 +455,7 @@ def _parse_element(rd, raw, key, materials):
         hint = f" (did you mean {', '.join(repr(n) for n in near)}?)" if near else ""
         rd.fail(f"{key}.kind", f"{kind!r} is not a known kind{hint}; expected one of {', '.join(ELEMENT_KINDS)}")
     default_flow, external = ELEMENT_KINDS[kind]
-    area = rd.number(raw, "area_m2", f"{key}.area_m2", positive=True)
+    area = rd.number(raw, "area_m2", f"{key}.area_m2", positive=True, maximum=1e5)
     orientation = raw.get("orientation")
     if orientation is not None:
         if isinstance(orientation, bool) or not isinstance(orientation, (str, int, float)):
@@ -482,7 +483,7 @@ def _parse_element(rd, raw, key, materials):
         if "h_outside_w_m2k" in raw:
             rd.fail(f"{key}.h_outside_w_m2k", "internal mass has no outdoor face (use h_inside_w_m2k)")
         h_out = None
-    u_given = rd.number(raw, "u_value_w_m2k", f"{key}.u_value_w_m2k", required=False, positive=True)
+    u_given = rd.number(raw, "u_value_w_m2k", f"{key}.u_value_w_m2k", required=False, positive=True, maximum=100.0)
     if u_given is not None and kind != "window":
         rd.fail(f"{key}.u_value_w_m2k", "only windows may give a U-value directly (give layers instead)")
     g_value = rd.number(raw, "g_value", f"{key}.g_value", required=False, minimum=0.0, maximum=1.0)

@@ -225,17 +225,20 @@ def parse_strategies(data, path=None):
     if heater is not None and heater not in HEATERS:
         raise InputError(f"{heater!r} is not a heater (expected one of {', '.join(HEATERS)})", path=path,
                          column="heater")
-    capacity = _positive(data.get("capacity_w"), path, "capacity_w", "W")
-    deadband = _positive(data.get("deadband_k"), path, "deadband_k", "K")
+    # Upper bounds far above any home's heater and thermostat (common practice): typing errors.
+    capacity = _positive(data.get("capacity_w"), path, "capacity_w", "W", high=1e7)
+    deadband = _positive(data.get("deadband_k"), path, "deadband_k", "K", high=20.0)
     return StrategySet(baseline=baseline, strategies=strategies, heater=heater, capacity_w=capacity,
                        deadband_k=deadband)
 
 
-def _positive(value, path, key, unit):
+def _positive(value, path, key, unit, high=math.inf):
     if value is None:
         return None
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not (math.isfinite(value) and value > 0):
-        raise InputError(f"{value!r} is not a positive number (expected {unit} > 0)", path=path, column=key)
+    if (isinstance(value, bool) or not isinstance(value, (int, float))
+            or not (math.isfinite(value) and 0 < value <= high)):
+        raise InputError(f"{value!r} is not a positive number (expected {unit} > 0 and <= {high:g})", path=path,
+                         column=key)
     return float(value)
 
 
@@ -254,6 +257,9 @@ def _strategy(entry, path, prefix, default_name):
         if not isinstance(ref, str):
             raise InputError(f"{ref!r} is not a file name", path=path, column=prefix + "schedule_file")
         base = os.path.dirname(os.fspath(path)) if path else ""
+        if not os.path.isfile(os.path.join(base, ref)):
+            raise InputError(f"{ref!r}: no such file (paths are relative to this file's folder)", path=path,
+                             column=prefix + "schedule_file")
         schedule = read_schedule(os.path.join(base, ref))
         schedule.name = name
     else:

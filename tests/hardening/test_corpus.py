@@ -136,6 +136,16 @@ def _check(tmp_path, argv, name, place, needle):
     return line
 
 
+def _check_parser(tmp_path, argv):
+    """Options with exists=True, dir_okay=False: typer's own usage error, exit 2 (typer docs, path.md)."""
+    out = _outputs(tmp_path, True)
+    before = snapshot(out)
+    result = runner.invoke(app, [a.replace("{OUT}", str(out)) for a in argv])
+    assert result.exit_code == 2 and "Traceback" not in result.output
+    assert "does not exist" in result.stderr or "is a directory" in result.stderr
+    assert snapshot(out) == before
+
+
 # ------------------------------------------------------------------------------------------
 # Logs: inspect, calibrate, simulate, report (through a home file)
 # ------------------------------------------------------------------------------------------
@@ -171,7 +181,8 @@ def test_hostile_log(tmp_path, k, case):
 def _assert_case(tmp_path, k, case, argv_for, stem, ext):
     name, content, needle = case[:3]
     bad = _put(tmp_path / f"{stem}{ext}", content)
-    _check(tmp_path, argv_for(tmp_path, bad, k), bad.name, needle is not None, needle)
+    named = case[3] if len(case) > 3 else bad.name
+    _check(tmp_path, argv_for(tmp_path, bad, k), named, needle is not None, needle)
 
 
 def _generic(ext=".toml"):
@@ -326,3 +337,194 @@ def test_hostile_weather(tmp_path, k, case):
         k = 0
     ext = ".epw" if case[0].startswith("epw") else ".csv"
     _assert_case(tmp_path, k, case, _weather_argv, "hostile_weather", ext)
+
+
+def _replace(text, old, new):
+    assert old in text, old
+    return text.replace(old, new, 1)
+
+
+def _toml_generic():
+    return [(n, c, None) for n, c, _ in GENERIC] + [("missing_file", MISSING, None)]
+
+
+# ------------------------------------------------------------------------------------------
+# Constructions: biot, calibrate --construction
+# ------------------------------------------------------------------------------------------
+
+GOOD_CONSTRUCTION = (DATA / "construction_handcalc.toml").read_text(encoding="utf-8")
+
+
+def _c(old, new):
+    return _replace(GOOD_CONSTRUCTION, old, new)
+
+
+CONSTRUCTION_CASES = _toml_generic() + [
+    ("truncated", GOOD_CONSTRUCTION[: GOOD_CONSTRUCTION.index("[[elements]]") + 6], None),
+    ("bad_syntax", _c("ach = 0.6", "ach = = 0.6"), r"row \d+"),
+    ("unknown_top_key", "colour = 'red'\n" + GOOD_CONSTRUCTION, r"column 'colour'"),
+    ("floor_area_zero", _c("floor_area_m2 = 40.0", "floor_area_m2 = 0.0"), r"column 'floor_area_m2'"),
+    ("floor_area_negative", _c("floor_area_m2 = 40.0", "floor_area_m2 = -40.0"), r"column 'floor_area_m2'"),
+    ("floor_area_nan", _c("floor_area_m2 = 40.0", "floor_area_m2 = nan"), r"column 'floor_area_m2'"),
+    ("floor_area_inf", _c("floor_area_m2 = 40.0", "floor_area_m2 = inf"), r"column 'floor_area_m2'"),
+    ("floor_area_1e308", _c("floor_area_m2 = 40.0", "floor_area_m2 = 1e308"), r"column 'floor_area_m2'"),
+    ("floor_area_text", _c("floor_area_m2 = 40.0", "floor_area_m2 = 'forty'"), r"column 'floor_area_m2'"),
+    ("floor_area_bool", _c("floor_area_m2 = 40.0", "floor_area_m2 = true"), r"column 'floor_area_m2'"),
+    ("no_air_leakage", _c("[air_leakage]\nach = 0.6\nvolume_m3 = 100.0\n", ""), r"column 'air_leakage'"),
+    ("ach_negative", _c("ach = 0.6", "ach = -0.6"), r"column 'air_leakage.ach'"),
+    ("ach_absurd", _c("ach = 0.6", "ach = 1e6"), r"column 'air_leakage.ach'"),
+    ("volume_zero", _c("volume_m3 = 100.0", "volume_m3 = 0"), r"column 'air_leakage.volume_m3'"),
+    ("elements_not_list", "elements = 5\n" + GOOD_CONSTRUCTION[: GOOD_CONSTRUCTION.index("[[elements]]")],
+     r"column 'elements'"),
+    ("area_negative", _c("area_m2 = 60.0", "area_m2 = -60.0"), r"column 'elements\[0\].area_m2'"),
+    ("thickness_zero", _c("thickness_m = 0.0125", "thickness_m = 0.0"), r"column 'elements\[0\].layers\[0\]"),
+    ("thickness_1e308", _c("thickness_m = 0.0125", "thickness_m = 1e308"), r"column 'elements\[0\].layers\[0\]"),
+    ("conductivity_negative", _c("conductivity_w_per_mk = 0.25", "conductivity_w_per_mk = -0.25"),
+     r"column 'elements\[0\].layers\[0\]"),
+    ("conductivity_nan", _c("conductivity_w_per_mk = 0.25", "conductivity_w_per_mk = nan"),
+     r"column 'elements\[0\].layers\[0\]"),
+    ("density_zero", _c("density_kg_per_m3 = 900.0", "density_kg_per_m3 = 0.0"),
+     r"column 'elements\[0\].layers\[0\]"),
+    ("specific_heat_inf", _c("specific_heat_j_per_kgk = 1000.0", "specific_heat_j_per_kgk = inf"),
+     r"column 'elements\[0\].layers\[0\]"),
+    ("unknown_kind", _c('kind = "external_wall"', 'kind = "moat"'), r"column 'elements\[0\].kind'"),
+    ("unknown_layer_key", _c('name = "plasterboard"', 'name = "plasterboard"\n  colour = "white"'),
+     r"column 'elements\[0\].layers\[0\]"),
+    ("duplicate_element", _c('name = "roof"', 'name = "wall"'), r"column 'elements\[1\].name'"),
+    ("window_u_negative", _c("u_value_w_m2k = 1.6", "u_value_w_m2k = -1.6"), r"column 'elements\[2\]"),
+    ("g_value_above_one", _c("g_value = 0.5", "g_value = 5.0"), r"column 'elements\[2\]"),
+    ("orientation_absurd", _c("orientation = 180", "orientation = 1e308"), r"column 'elements\[0\].orientation'"),
+    ("formula_name", _c('name = "wall"', 'name = 7'), r"column 'elements\[0\].name'"),
+    ("volume_1e308", _c("volume_m3 = 100.0", "volume_m3 = 1e308"), r"column 'air_leakage.volume_m3'"),
+    ("area_1e308", _c("area_m2 = 60.0", "area_m2 = 1e308"), r"column 'elements\[0\].area_m2'"),
+]
+
+
+def _construction_argv(tmp_path, bad, k):
+    if k % 2 == 0:
+        return ["biot", str(bad), "--out", "{OUT}/out.json"]
+    return ["calibrate", str(DATA / "invented_logger.csv"), "--map", str(DATA / "invented_logger_map.toml"),
+            "--construction", str(bad), "--out", "{OUT}/out.json", "--model", "1R1C"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(CONSTRUCTION_CASES)), ids=[c[0] for c in CONSTRUCTION_CASES])
+def test_hostile_construction(tmp_path, k, case):
+    if case[1] in (DIR, MISSING):  # both commands declare the file exists=True, dir_okay=False
+        bad = _put(tmp_path / "hostile_construction.toml", case[1])
+        _check_parser(tmp_path, _construction_argv(tmp_path, bad, k))
+        return
+    _assert_case(tmp_path, k, case, _construction_argv, "hostile_construction", ".toml")
+
+
+# ------------------------------------------------------------------------------------------
+# Schedules: forecast --schedule
+# ------------------------------------------------------------------------------------------
+
+GOOD_SCHEDULE = (EXAMPLES / "schedule.toml").read_text(encoding="utf-8")
+
+
+def _s(old, new):
+    return _replace(GOOD_SCHEDULE, old, new)
+
+
+SCHEDULE_CASES = _toml_generic() + [
+    ("truncated", GOOD_SCHEDULE[: GOOD_SCHEDULE.index("[week]") + 3], None),
+    ("bad_syntax", _s("day_c = 20.5", "day_c = 20.5.1"), r"row \d+"),
+    ("unknown_top_key", "colour = 'red'\n" + GOOD_SCHEDULE, r"column 'colour'"),
+    ("level_nan", _s("day_c = 20.5", "day_c = nan"), r"column 'levels.day_c'"),
+    ("level_inf", _s("day_c = 20.5", "day_c = inf"), r"column 'levels.day_c'"),
+    ("level_1e308", _s("day_c = 20.5", "day_c = 1e308"), r"column 'levels.day_c'"),
+    ("level_below_absolute_zero", _s("night_c = 17.0", "night_c = -300.0"), r"column 'levels.night_c'"),
+    ("level_text", _s("day_c = 20.5", "day_c = 'warm'"), r"column 'levels.day_c'"),
+    ("level_bool", _s("day_c = 20.5", "day_c = true"), r"column 'levels.day_c'"),
+    ("unknown_day", _s("weekdays = ", "caturday = "), r"column 'week.caturday'"),
+    ("time_25h", _s('["06:30", "day"]', '["25:30", "day"]'), r"column 'week.weekdays"),
+    ("time_garbage", _s('["06:30", "day"]', '["=cmd|\' /C calc\'!A0", "day"]'), r"column 'week.weekdays"),
+    ("time_number", _s('["06:30", "day"]', '[630, "day"]'), r"column 'week.weekdays"),
+    ("unknown_level", _s('["06:30", "day"]', '["06:30", "tropical"]'), r"column 'week.weekdays"),
+    ("entry_not_pair", _s('["06:30", "day"]', '["06:30"]'), r"column 'week.weekdays"),
+    ("entry_setpoint_absurd", _s('["06:30", "day"]', '["06:30", 1e308]'), r"column 'week.weekdays"),
+    ("unsorted_times", _s('[["06:30", "day"], ["23:00", "night"]]', '[["23:00", "night"], ["06:30", "day"]]'),
+     r"column 'week.weekdays"),
+    ("duplicated_times", _s('[["06:30", "day"], ["23:00", "night"]]', '[["06:30", "day"], ["06:30", "night"]]'),
+     r"column 'week.weekdays"),
+    ("week_not_table", _s("weekdays = ", "x_weekdays = ").replace("[week]", "week = 3\n[weekx]"), r"column '"),
+    ("holiday_bad_date", _s('"07-04"', '"13-45"'), r"column 'holidays"),
+    ("holiday_number", _s('"07-04"', '704'), r"column 'holidays"),
+    ("away_end_before_start", _s('start = "02-10"', 'start = "2024-02-10"').replace('end = "02-16"', 'end = "2024-02-01"'),
+     r"column 'away"),
+    ("away_bad_level", _s('level = "away"', 'level = "moon"'), r"column 'away"),
+    ("away_absurd_year", _s('start = "02-10"', 'start = "0001-02-10"'), r"column 'away"),
+    ("holidays_not_list", _s('holidays = ["01-01", "07-04", "12-25", "12-26"]', 'holidays = 5'), r"column 'holidays"),
+]
+
+
+def _schedule_argv(tmp_path, bad, k):
+    result = write_good_result(tmp_path / "result.json")
+    return ["forecast", str(result), "--weather", str(TMY3), "--schedule", str(bad), "--out", "{OUT}/out.csv",
+            "--summary", "{OUT}/summary.json", "--draws", "0"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(SCHEDULE_CASES)), ids=[c[0] for c in SCHEDULE_CASES])
+def test_hostile_schedule(tmp_path, k, case):
+    _assert_case(tmp_path, k, case, _schedule_argv, "hostile_schedule", ".toml")
+
+
+# ------------------------------------------------------------------------------------------
+# Strategies: setback --strategies
+# ------------------------------------------------------------------------------------------
+
+GOOD_STRATEGIES = (EXAMPLES / "strategies.toml").read_text(encoding="utf-8")
+
+
+def _st(old, new):
+    return _replace(GOOD_STRATEGIES, old, new)
+
+
+STRATEGY_CASES = _toml_generic() + [
+    ("truncated", GOOD_STRATEGIES[: GOOD_STRATEGIES.index("[[strategy]]") + 4], None),
+    ("bad_syntax", _st("capacity_w = 10000.0", "capacity_w = 10 000.0"), r"row \d+"),
+    ("unknown_top_key", "colour = 'red'\n" + GOOD_STRATEGIES, r"column 'colour'"),
+    ("heater_unknown", _st('heater = "capacity"', 'heater = "volcano"'), r"column 'heater'"),
+    ("capacity_zero", _st("capacity_w = 10000.0", "capacity_w = 0.0"), r"column 'capacity_w'"),
+    ("capacity_negative", _st("capacity_w = 10000.0", "capacity_w = -10000.0"), r"column 'capacity_w'"),
+    ("capacity_nan", _st("capacity_w = 10000.0", "capacity_w = nan"), r"column 'capacity_w'"),
+    ("capacity_inf", _st("capacity_w = 10000.0", "capacity_w = inf"), r"column 'capacity_w'"),
+    ("capacity_text", _st("capacity_w = 10000.0", "capacity_w = 'big'"), r"column 'capacity_w'"),
+    ("no_baseline", _st('[baseline]\nname = "steady 20.5"\nconstant_c = 20.5\n', ''), r"column 'baseline'"),
+    ("baseline_nan", _st("constant_c = 20.5", "constant_c = nan"), r"column 'baseline"),
+    ("baseline_1e308", _st("constant_c = 20.5", "constant_c = 1e308"), r"column 'baseline"),
+    ("strategy_not_array", "strategy = 4\n" + GOOD_STRATEGIES[: GOOD_STRATEGIES.index("[[strategy]]")],
+     r"column 'strategy'"),
+    ("capacity_1e308", _st("capacity_w = 10000.0", "capacity_w = 1e308"), r"column 'capacity_w'"),
+    ("preheat_negative", _st("preheat_h = 1.0", "preheat_h = -1.0"), r"column 'strategy\[2\]"),
+    ("preheat_huge", _st("preheat_h = 1.0", "preheat_h = 1e308"), r"column 'strategy\[2\]"),
+    ("optimal_start_text", _st("optimal_start = true", "optimal_start = 'yes'"), r"column 'strategy\[3\]"),
+    ("max_lead_zero", _st("max_lead_h = 6.0", "max_lead_h = 0.0"), r"column 'strategy\[3\]"),
+    ("week_time_garbage", _st('["06:00", 20.5], ["22:00", 16.0]]', '["6 o\'clock", 20.5], ["22:00", 16.0]]'),
+     r"column 'strategy\[1\]"),
+    ("week_setpoint_inf", _st('["06:00", 20.5], ["22:00", 16.0]]', '["06:00", inf], ["22:00", 16.0]]'),
+     r"column 'strategy\[1\]"),
+    ("schedule_file_missing", _st('schedule_file = "schedule.toml"', 'schedule_file = "nowhere.toml"'),
+     r"column 'strategy\[4\]"),
+    # A path out of the folder is the user's choice; a file that is no schedule is refused by its own name.
+    ("schedule_file_traversal", _st('schedule_file = "schedule.toml"',
+                                    'schedule_file = "../../../../../../../../etc/passwd"'), r"row 1", "passwd"),
+    ("schedule_file_is_folder", _st('schedule_file = "schedule.toml"', 'schedule_file = "."'),
+     r"column 'strategy\[4\]"),
+    ("duplicate_names", _st('name = "night 16.0, 8 h"', 'name = "night 17.0"'), r"column 'strategy\[1\]"),
+    ("name_number", _st('name = "night 17.0"', 'name = 17'), r"column 'strategy\[0\]"),
+    ("unknown_strategy_key", _st("preheat_h = 1.0", "preheat_h = 1.0\nteleport = true"), r"column 'strategy\[2\]"),
+]
+
+
+def _strategy_argv(tmp_path, bad, k):
+    result = write_good_result(tmp_path / "result.json")
+    return ["setback", str(result), "--weather", str(TMY3), "--strategies", str(bad), "--out", "{OUT}/out.csv",
+            "--summary", "{OUT}/summary.json"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(STRATEGY_CASES)), ids=[c[0] for c in STRATEGY_CASES])
+def test_hostile_strategies(tmp_path, k, case):
+    (tmp_path / "schedule.toml").write_text(GOOD_SCHEDULE, encoding="utf-8")
+    _assert_case(tmp_path, k, case, _strategy_argv, "hostile_strategies", ".toml")
