@@ -232,7 +232,11 @@ class CalibrationResult:
         for key, value in params.items():
             if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
                 raise InputError(f"{value!r} is not a finite number", path=path, column=f"parameters.{key}")
+            if abs(value) > _PARAMETER_LIMIT:
+                raise InputError(f"{value!r} is beyond any home (expected a magnitude up to {_PARAMETER_LIMIT:g})",
+                                 path=path, column=f"parameters.{key}")
             clean[key] = float(value)
+        _check_file_fields(data, clean, path)
         needed = PRESETS[model.upper()].parameters
         missing = [p for p in needed if p not in clean]
         if missing:
@@ -349,6 +353,38 @@ class CalibrationResult:
                     f"(limit ±10 %): {verdict} ASHRAE Guideline 14"
                 )
         return "\n".join(lines)
+
+
+#: Largest magnitude of a stored parameter: far above any home's capacitance [J/K], resistance,
+#: aperture or gains, and far below float overflow in the products the models form.
+_PARAMETER_LIMIT = 1e15
+
+
+def _check_file_fields(data, params, path):
+    """Refuse a damaged ``step_s``, ``site`` or ``covariance`` instead of using a default silently."""
+    step = data.get("step_s")
+    if step is not None and (isinstance(step, bool) or not isinstance(step, (int, float))
+                             or not (math.isfinite(step) and 0 < step <= 86400)):
+        raise InputError(f"{step!r} is not a model step (expected seconds, 0 < step_s <= 86400)", path=path,
+                         column="step_s")
+    if data.get("site") is not None and not isinstance(data["site"], dict):
+        raise InputError(f"{data['site']!r} is not an object (expected latitude, longitude, tz)", path=path,
+                         column="site")
+    cov = data.get("covariance")
+    if cov is None:
+        return
+    names = cov.get("names") if isinstance(cov, dict) else None
+    matrix = cov.get("matrix") if isinstance(cov, dict) else None
+    if not isinstance(names, list) or any(n not in params for n in names if isinstance(n, str)) or not all(
+            isinstance(n, str) for n in names):
+        raise InputError("'names' must list parameters of the model", path=path, column="covariance.names")
+    # Null entries are NaN written as JSON null: a covariance the fit could not estimate.
+    ok = isinstance(matrix, list) and len(matrix) == len(names) and all(
+        isinstance(r, list) and len(r) == len(names)
+        and all(v is None or (isinstance(v, (int, float)) and not isinstance(v, bool)) for v in r) for r in matrix)
+    if not ok:
+        raise InputError(f"'matrix' must be {len(names)} x {len(names)} numbers, one row and column per name",
+                         path=path, column="covariance.matrix")
 
 
 def _number(value, default=math.nan):

@@ -528,3 +528,208 @@ def _strategy_argv(tmp_path, bad, k):
 def test_hostile_strategies(tmp_path, k, case):
     (tmp_path / "schedule.toml").write_text(GOOD_SCHEDULE, encoding="utf-8")
     _assert_case(tmp_path, k, case, _strategy_argv, "hostile_strategies", ".toml")
+
+
+# ------------------------------------------------------------------------------------------
+# Home files: report
+# ------------------------------------------------------------------------------------------
+
+GOOD_HOME = ('name = "27 Larchmere Row, Quillhaven (invented)"\nfloor_area_m2 = 120.0\n'
+             '[log]\nfile = "log.csv"\ntz = "America/New_York"\n'
+             '[model]\npreset = "1R1C"\ngains = "constant"\n')
+
+
+def _h(old, new):
+    return _replace(GOOD_HOME, old, new)
+
+
+HOME_CASES = _toml_generic() + [
+    ("truncated", GOOD_HOME[: GOOD_HOME.index("[model]") + 3], None),
+    ("bad_syntax", _h('preset = "1R1C"', 'preset = "1R1C'), r"row \d+"),
+    ("unknown_top_key", "colour = 'red'\n" + GOOD_HOME, r"column 'colour'"),
+    ("no_log", _h('[log]\nfile = "log.csv"\ntz = "America/New_York"\n', ''), r"column 'log'"),
+    ("log_missing_file", _h('file = "log.csv"', 'file = "nowhere.csv"'), r"column 'log.file'"),
+    ("log_traversal", _h('file = "log.csv"', 'file = "../../../../../../../../no/such/log.csv"'),
+     r"column 'log.file'"),
+    ("log_is_folder", _h('file = "log.csv"', 'file = "."'), r"column 'log.file'"),
+    ("log_file_number", _h('file = "log.csv"', 'file = 42'), r"column 'log.file'"),
+    ("log_unknown_key", _h('tz = "America/New_York"', 'tz = "America/New_York"\nformat = "csv"'),
+     r"column 'log.format'"),
+    ("tz_unknown", _h('tz = "America/New_York"', 'tz = "Atlantis/Central"'), r"column 'log.tz'"),
+    ("interval_wrong", _h('tz = "America/New_York"', 'tz = "America/New_York"\ninterval = "middle"'),
+     r"column 'log.interval'"),
+    ("preset_unknown", _h('preset = "1R1C"', 'preset = "9R9C"'), r"column 'model.preset'"),
+    ("gains_unknown", _h('gains = "constant"', 'gains = "lunar"'), r"column 'model.gains'"),
+    ("step_zero", _h('gains = "constant"', 'gains = "constant"\nstep_min = 0'), r"column 'model.step_min'"),
+    ("step_nan", _h('gains = "constant"', 'gains = "constant"\nstep_min = nan'), r"column 'model.step_min'"),
+    ("step_text", _h('gains = "constant"', 'gains = "constant"\nstep_min = "five"'), r"column 'model.step_min'"),
+    ("floor_area_negative", _h("floor_area_m2 = 120.0", "floor_area_m2 = -120.0"), r"column 'floor_area_m2'"),
+    ("floor_area_inf", _h("floor_area_m2 = 120.0", "floor_area_m2 = inf"), r"column 'floor_area_m2'"),
+    ("floor_area_1e308", _h("floor_area_m2 = 120.0", "floor_area_m2 = 1e308"), r"column 'floor_area_m2'"),
+    ("site_latitude_100", GOOD_HOME.replace("[log]", "[site]\nlatitude = 100.0\nlongitude = 0.0\n[log]"),
+     r"column 'site.latitude'"),
+    ("site_latitude_only", GOOD_HOME.replace("[log]", "[site]\nlatitude = 45.0\n[log]"), r"column 'site."),
+    ("site_longitude_nan", GOOD_HOME.replace("[log]", "[site]\nlatitude = 45.0\nlongitude = nan\n[log]"),
+     r"column 'site.longitude'"),
+    ("weather_missing", GOOD_HOME.replace("[log]", "[weather]\nfile = \"nowhere.epw\"\n[log]"),
+     r"column 'weather.file'"),
+    ("construction_missing", 'construction = "nowhere.toml"\n' + GOOD_HOME, r"column 'construction'"),
+    ("result_missing", _h('gains = "constant"', 'gains = "constant"\nresult = "nowhere.json"'),
+     r"column 'model.result'"),
+    ("model_not_table", _h('[model]\npreset = "1R1C"\ngains = "constant"\n', '').replace(
+        "floor_area_m2 = 120.0", "floor_area_m2 = 120.0\nmodel = 3"), r"column 'model'"),
+    ("name_number", _h('name = "27 Larchmere Row, Quillhaven (invented)"', "name = 27"), r"column 'name'"),
+]
+
+
+def _home_argv(tmp_path, bad, k):
+    (tmp_path / "log.csv").write_text(GOOD_LOG, encoding="utf-8")
+    return ["report", str(bad), "--month", "2024-01", "--out", "{OUT}"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(HOME_CASES)), ids=[c[0] for c in HOME_CASES])
+def test_hostile_home_file(tmp_path, k, case):
+    _assert_case(tmp_path, k, case, _home_argv, "hostile_home", ".toml")
+
+
+# ------------------------------------------------------------------------------------------
+# RESULT.json: forecast, setback, simulate
+# ------------------------------------------------------------------------------------------
+
+def _result_json(**changes):
+    from tests.hardening.conftest import good_result
+
+    body = json.loads(json.dumps(good_result().to_dict()))
+    for key, value in changes.items():
+        target = body
+        *parents, last = key.split("__")
+        for p in parents:
+            target = target[p]
+        if value is DELETE:
+            del target[last]
+        else:
+            target[last] = value
+    return json.dumps(body, indent=2)
+
+
+DELETE = object()
+_GOOD_RESULT_TEXT = _result_json()
+
+RESULT_CASES = [(n, c, None) for n, c, _ in GENERIC if n != "blank_lines"] + [
+    ("missing_file", MISSING, None),
+    ("blank_lines", b"\n \n\t\n", r"row \d+"),
+    ("truncated", _GOOD_RESULT_TEXT[: len(_GOOD_RESULT_TEXT) // 2], r"row \d+"),
+    ("trailing_garbage", _GOOD_RESULT_TEXT + "\n}}", r"row \d+"),
+    ("top_level_list", "[1, 2, 3]", None),
+    ("top_level_number", "1e308", None),
+    ("nan_literal", _GOOD_RESULT_TEXT.replace('"c_indoor_j_per_k": 3000000.0', '"c_indoor_j_per_k": NaN'),
+     r"column 'parameters.c_indoor_j_per_k'"),
+    ("infinity_literal", _GOOD_RESULT_TEXT.replace('"c_indoor_j_per_k": 3000000.0', '"c_indoor_j_per_k": Infinity'),
+     r"column 'parameters.c_indoor_j_per_k'"),
+    ("huge_exponent", _GOOD_RESULT_TEXT.replace('"c_indoor_j_per_k": 3000000.0', '"c_indoor_j_per_k": 1e999'),
+     r"column 'parameters.c_indoor_j_per_k'"),
+    ("model_unknown", _result_json(model="4R4C"), r"column 'model'"),
+    ("model_number", _result_json(model=2), r"column 'model'"),
+    ("model_missing", _result_json(model=DELETE), r"column 'model'"),
+    ("parameters_list", _result_json(parameters=[1, 2]), r"column 'parameters'"),
+    ("parameter_missing", _result_json(parameters__c_indoor_j_per_k=DELETE), r"column 'parameters'"),
+    ("parameter_text", _result_json(parameters__c_indoor_j_per_k="3e6"), r"column 'parameters.c_indoor_j_per_k'"),
+    ("parameter_bool", _result_json(parameters__c_indoor_j_per_k=True), r"column 'parameters.c_indoor_j_per_k'"),
+    ("parameter_null", _result_json(parameters__c_indoor_j_per_k=None), r"column 'parameters.c_indoor_j_per_k'"),
+    ("capacitance_negative", _result_json(parameters__c_indoor_j_per_k=-3e6), r"column 'parameters"),
+    ("capacitance_envelope_negative", _result_json(parameters__c_envelope_j_per_k=-1.0), r"column 'parameters"),
+    ("resistance_negative", _result_json(parameters__r_envelope_outdoor_k_per_w=-0.004), r"column 'parameters"),
+    ("resistance_zero", _result_json(parameters__r_indoor_envelope_k_per_w=0.0), r"column 'parameters"),
+    ("capacitance_1e308", _result_json(parameters__c_indoor_j_per_k=1e308), r"column 'parameters"),
+    ("gains_kind_unknown", _result_json(gains_schedule={"kind": "weekly"}), r"column 'gains_schedule'"),
+    ("day_night_without_values", _result_json(gains_schedule={"kind": "day_night"}), r"column 'parameters'"),
+    ("step_negative", _result_json(step_s=-300.0), r"column 'step_s'"),
+    ("step_text", _result_json(step_s="five minutes"), r"column 'step_s'"),
+    ("covariance_ragged", _result_json(covariance={"names": ["r_envelope_outdoor_k_per_w"], "space": "log",
+                                                   "matrix": [[1.0, 2.0]]}), r"column 'covariance"),
+    ("covariance_not_object", _result_json(covariance="tight"), r"column 'covariance"),
+    ("covariance_unknown_name", _result_json(covariance={"names": ["colour"], "space": "log", "matrix": [[1.0]]}),
+     r"column 'covariance"),
+    ("site_not_table", _result_json(site="Quillhaven"), r"column 'site'"),
+]
+
+
+def _result_argv(tmp_path, bad, k):
+    which = k % 3
+    if which == 0:
+        return ["forecast", str(bad), "--weather", str(TMY3), "--out", "{OUT}/out.csv",
+                "--summary", "{OUT}/summary.json", "--draws", "3"]
+    if which == 1:
+        return ["setback", str(bad), "--weather", str(TMY3), "--strategies", str(EXAMPLES / "strategies.toml"),
+                "--out", "{OUT}/out.csv", "--summary", "{OUT}/summary.json"]
+    log = tmp_path / "log.csv"
+    log.write_text(GOOD_LOG, encoding="utf-8")
+    return ["simulate", str(bad), "--log", str(log), "--out", "{OUT}/out.csv"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(RESULT_CASES)), ids=[c[0] for c in RESULT_CASES])
+def test_hostile_result_json(tmp_path, k, case):
+    if case[1] in (DIR, MISSING) and k % 3 == 2:
+        k = 0  # simulate declares the file exists=True, dir_okay=False: typer's own error
+    _assert_case(tmp_path, k, case, _result_argv, "hostile_result", ".json")
+
+
+# ------------------------------------------------------------------------------------------
+# Fleet manifests: fleet (the manifest is checked in full before any home runs)
+# ------------------------------------------------------------------------------------------
+
+GOOD_MANIFEST_TOML = ('[defaults]\ntz = "America/New_York"\n\n[[home]]\nid = "qh-001"\nlog = "log.csv"\n'
+                      'floor_area_m2 = 118\n\n[[home]]\nid = "qh-002"\nlog = "log.csv"\n')
+_MH = "id,log,site,floor_area_m2,tz\n"
+_MR = 'qh-001,log.csv,"45.0,-90.0",118,America/New_York\n'
+
+MANIFEST_CASES = [(n, c, None, ".csv") for n, c, _ in GENERIC if n != "directory"] + [
+    ("header_only_csv", _MH, None, ".csv"),
+    ("unknown_column", "id,log,colour\nqh-001,log.csv,red\n", r"row 1, column 'colour'", ".csv"),
+    ("column_twice", "id,log,log\nqh-001,log.csv,log.csv\n", r"row 1, column 'log'", ".csv"),
+    ("gigantic_header", ",".join(["id", "log"] + [f"c{i}" for i in range(20_000)]) + "\n", r"row 1, column 'c0'",
+     ".csv"),
+    ("no_id", _MH + ',log.csv,"45.0,-90.0",118,America/New_York\n', r"row 2, column 'id'", ".csv"),
+    ("no_log", _MH + 'qh-001,,"45.0,-90.0",118,America/New_York\n', r"row 2, column 'log'", ".csv"),
+    ("id_twice", _MH + _MR + _MR, r"row 3, column 'id'", ".csv"),
+    ("site_unquoted", _MH + "qh-001,log.csv,45.0,-90.0,118,America/New_York\n", r"row 2", ".csv"),
+    ("site_off_globe", _MH + _MR.replace("45.0,-90.0", "145.0,-90.0"), r"row 2, column 'site'", ".csv"),
+    ("site_formula", _MH + _MR.replace('"45.0,-90.0"', "=cmd|' /C calc'!A0"), r"row 2, column 'site'", ".csv"),
+    ("floor_area_text", _MH + _MR.replace(",118,", ",huge,"), r"row 2, column 'floor_area_m2'", ".csv"),
+    ("floor_area_nan", _MH + _MR.replace(",118,", ",nan,"), r"row 2, column 'floor_area_m2'", ".csv"),
+    ("floor_area_1e308", _MH + _MR.replace(",118,", ",1e308,"), r"row 2, column 'floor_area_m2'", ".csv"),
+    ("floor_area_negative", _MH + _MR.replace(",118,", ",-118,"), r"row 2, column 'floor_area_m2'", ".csv"),
+    ("tz_unknown", _MH + _MR.replace("America/New_York", "Mars/Olympus"), r"row 2, column 'tz'", ".csv"),
+    ("tz_traversal", _MH + _MR.replace("America/New_York", "../../../etc/localtime"), r"row 2, column 'tz'", ".csv"),
+    ("interval_wrong", "id,log,interval\nqh-001,log.csv,middle\n", r"row 2, column 'interval'", ".csv"),
+    ("partition_malformed", "id,log,partition\nqh-001,logs.parquet,home_id\n", r"row 2, column 'partition'", ".csv"),
+    ("toml_truncated", GOOD_MANIFEST_TOML[:-12], None, ".toml"),
+    ("toml_unknown_table", GOOD_MANIFEST_TOML + "\n[extras]\nx = 1\n", r"column 'extras'", ".toml"),
+    ("toml_unknown_key", GOOD_MANIFEST_TOML + 'colour = "red"\n', r"row \d+, column 'colour'", ".toml"),
+    ("toml_home_not_array", 'home = 3\n', r"column 'home'", ".toml"),
+    ("toml_defaults_not_table", 'defaults = 3\n[[home]]\nid = "a"\nlog = "log.csv"\n', r"column 'defaults'",
+     ".toml"),
+    ("toml_id_list", GOOD_MANIFEST_TOML.replace('id = "qh-002"', 'id = ["qh", 2]'), r"row \d+, column 'id'",
+     ".toml"),
+    ("toml_floor_area_inf", GOOD_MANIFEST_TOML.replace("floor_area_m2 = 118", "floor_area_m2 = inf"),
+     r"row \d+, column 'floor_area_m2'", ".toml"),
+    ("toml_filters_nested", GOOD_MANIFEST_TOML.replace('log = "log.csv"\nfloor', 'log = "log.csv"\n'
+                                                       'filters = { home_id = [1, 2] }\nfloor'),
+     r"column 'filters'", ".toml"),
+    ("toml_no_homes", '[defaults]\ntz = "UTC"\n', None, ".toml"),
+]
+
+
+def _manifest_argv(tmp_path, bad, k):
+    (tmp_path / "log.csv").write_text(GOOD_LOG, encoding="utf-8")
+    return ["fleet", str(bad), "--out", "{OUT}/out.parquet", "--workers", "1", "--quiet"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(MANIFEST_CASES)), ids=[c[0] for c in MANIFEST_CASES])
+def test_hostile_manifest(tmp_path, k, case):
+    _assert_case(tmp_path, k, case[:3], _manifest_argv, "hostile_manifest", case[3])
+
+
+def test_manifest_folder_is_refused_by_the_parser(tmp_path):
+    bad = _put(tmp_path / "hostile_manifest.csv", DIR)
+    _check_parser(tmp_path, _manifest_argv(tmp_path, bad, 0))
