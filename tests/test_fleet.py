@@ -276,6 +276,8 @@ def test_calibrate_home_never_raises(tmp_path):
     assert row["status"] == "error" and row["error"] == "missing.csv: no such file"
     row = calibrate_home({"home_id": "p", "log": str(tmp_path), "partition": {"home_id": "zz"}})
     assert row["status"] == "error" and "partition column 'home_id'" in row["error"]
+    row = calibrate_home({"home_id": "d", "log": str(tmp_path)})
+    assert row["status"] == "error" and "is a folder (expected a log file, or a partition" in row["error"]
 
 
 def test_dask_cluster_gives_the_local_pool_results(fleet_dir, local_run, tmp_path):

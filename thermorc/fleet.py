@@ -343,7 +343,7 @@ def _home_from_record(values, row, key_rows, path, base):
     if area is not None:
         try:
             area = float(area) if not isinstance(area, bool) else math.nan
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise InputError(f"floor area is {area!r} (expected a number of square metres)", **where("floor_area_m2")) from None
         lo, hi = FLOOR_AREA_BOUNDS_M2
         if not (math.isfinite(area) and lo <= area <= hi):
@@ -430,6 +430,9 @@ def _partition_frame(dataset, partition):
 def _log_file(home):
     """A path ``calibrate_files`` can read for this home, and the name to show in messages."""
     if not home.partition:
+        if os.path.isdir(home.log):
+            raise InputError("is a folder (expected a log file, or a partition such as home_id=123 to pick this "
+                             "home's rows of a Parquet dataset)", path=home.log)
         yield home.log, home.log
         return
     frame, source = _partition_frame(home.log, home.partition)

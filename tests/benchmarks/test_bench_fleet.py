@@ -10,7 +10,6 @@ import cProfile
 import io
 import os
 import pstats
-import resource
 import threading
 import time
 
@@ -57,7 +56,7 @@ def _write_fleet(root, n_homes):
 
 
 class _PeakRss:
-    """Largest sum of resident set sizes of this process and its children, sampled."""
+    """Largest sum of resident set sizes of this process and its children, and their CPU time, sampled."""
 
     def __init__(self, every_s=0.1):
         import psutil
@@ -65,6 +64,7 @@ class _PeakRss:
         self.me = psutil.Process()
         self.every_s = every_s
         self.peak = 0
+        self.cpu_s = {}
         self._stop = threading.Event()
         self._thread = threading.Thread(target=self._run, daemon=True)
 
@@ -76,6 +76,9 @@ class _PeakRss:
             for proc in [self.me, *self.me.children(recursive=True)]:
                 try:
                     total += proc.memory_info().rss
+                    if proc.pid != self.me.pid:
+                        times = proc.cpu_times()
+                        self.cpu_s[proc.pid] = times.user + times.system
                 except psutil.Error:
                     pass
             self.peak = max(self.peak, total)
@@ -112,15 +115,13 @@ def test_fleet_rate_and_memory(tmp_path):
     print(text.getvalue()[-4000:])
 
     out = tmp_path / "RESULTS.parquet"
-    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     with _PeakRss() as rss:
         t2 = time.perf_counter()
         run = run_fleet(tmp_path / "homes.csv", out, workers=2, model="auto")
         wall = time.perf_counter() - t2
-    after = resource.getrusage(resource.RUSAGE_CHILDREN)
-    # CPU seconds of the (finished, reaped) worker processes: the rate two idle cores would give,
-    # whatever else the machine was running.
-    cpu_s = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
+    # CPU seconds of the worker processes (children of the pool's server, so sampled): the rate
+    # two idle cores would give, whatever else the machine was running.
+    cpu_s = max(sum(rss.cpu_s.values()), 1e-9)
     rate = run.n_run / wall
     frame = pd.read_parquet(out)
     print(f"{run.n_run} homes in {wall:.1f} s on 2 workers: {rate:.2f} homes/s (goal {TARGET_HOMES_PER_S:g}); "
