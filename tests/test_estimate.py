@@ -178,3 +178,22 @@ def test_auto_compares_the_three_presets_and_keeps_the_table():
     assert by_model["1R1C"]["holdout_rmse_k"] > 1.5 * by_model["2R2C"]["holdout_rmse_k"]
     assert res.model in ("2R2C", "3R2C")
     assert sum(row["chosen"] for row in table) == 1
+
+
+def test_ua_prior_combines_with_the_data_by_their_information():
+    # Gaussian prior times Gaussian likelihood in log UA: the posterior mean is the
+    # precision-weighted mean and the posterior variance the inverse of the summed precisions
+    # (conjugate normal update; e.g. Gelman et al., Bayesian Data Analysis, ch. 2, from memory).
+    log, _, _ = stochastic_log(seed=21, days=8)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        free = estimate.calibrate(log, model="2R2C", energy_metrics=False)
+        ua_d = free.heat_loss_coefficient_w_per_k
+        sd_d = free.std_errors["heat_loss_coefficient_w_per_k"] / ua_d
+        prior_ua, prior_sd = 1.3 * ua_d, sd_d  # as informative as the data
+        post = estimate.calibrate(log, model="2R2C", energy_metrics=False, ua_prior=(prior_ua, prior_sd))
+    expected = math.exp(0.5 * (math.log(ua_d) + math.log(prior_ua)))
+    assert post.heat_loss_coefficient_w_per_k == pytest.approx(expected, rel=0.03)
+    sd_post = post.std_errors["heat_loss_coefficient_w_per_k"] / post.heat_loss_coefficient_w_per_k
+    assert sd_post == pytest.approx(sd_d / math.sqrt(2), rel=0.25)
+    assert post.extras["estimator"]["ua_prior"]["ua_w_per_k"] == pytest.approx(prior_ua)

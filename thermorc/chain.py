@@ -24,6 +24,9 @@ __all__ = ["PreparedLog", "prepare_log", "parse_site", "calibrate_files", "simul
 #: four vertical façades. [W m⁻²]
 SOLAR_COLUMN = "solar_vertical_w_m2"
 
+#: Relative standard uncertainty given to a construction's UA when it serves as a prior.
+CONSTRUCTION_UA_REL_SD = 0.2
+
 
 @dataclass
 class PreparedLog:
@@ -313,11 +316,16 @@ def calibrate_files(
     if isinstance(site, str):
         site = parse_site(site)
     built = None
+    ua_prior = None
     if construction is not None:
-        from thermorc.construction import read_construction
+        from thermorc.construction import construction_ua, read_construction
 
         # Check every input file before the fit, which can take minutes.
         built = read_construction(construction)
+        # The construction's UA is a prior with a 20 % relative standard uncertainty (our
+        # assumption, as in thermorc.iso13790.plausibility_details; measured whole-home heat
+        # loss often differs from the design value by that much or more).
+        ua_prior = (construction_ua(built)["ua_w_per_k"], CONSTRUCTION_UA_REL_SD)
     prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site, step_s=step_s)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
@@ -332,9 +340,9 @@ def calibrate_files(
         spinner = Console(stderr=True).status("fitting the model", spinner="dots")
     with spinner:
         if model == "auto":
-            result = estimate.calibrate_auto(data, gains=gains, path=str(log_path))
+            result = estimate.calibrate_auto(data, gains=gains, path=str(log_path), ua_prior=ua_prior)
         else:
-            result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path))
+            result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path), ua_prior=ua_prior)
     result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
     result.extras["data_quality"] = {"verdict": report.verdict, "supported": list(report.supported)}
     if built is not None:

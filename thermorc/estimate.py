@@ -492,8 +492,11 @@ def _blocks(data, observed, block):
     return block_id, n_blocks
 
 
-def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1):
-    """Least squares on the open-loop indoor temperature; returns the best of a few starts."""
+def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, prior=None):
+    """Least squares on the open-loop indoor temperature; returns the best of a few starts.
+
+    ``prior`` is ``(log_ua, weight)``: one extra residual ``weight * (log UA(theta) - log_ua)``.
+    """
     best = None
     tried = []
     for start in _start_values(model, data, previous):
@@ -515,8 +518,11 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1):
             r = data.y[used] - yhat[used]
             sums = np.bincount(block_id[used], weights=r, minlength=n_blocks)
             counts = np.bincount(block_id[used], minlength=n_blocks)
-            out = sums / counts
-            return np.where(np.isfinite(out), out, 1e3)
+            out = np.where(np.isfinite(sums / counts), sums / counts, 1e3)
+            if prior is not None:
+                log_ua = math.log(layout.network(theta).heat_loss_coefficient_w_per_k()["total"])
+                out = np.append(out, prior[1] * (log_ua - prior[0]))
+            return out
 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -704,6 +710,55 @@ ho^{|i-j|}`, with :math:`c` fitted to
     )
 
 
+def _log_ua_gradient(layout, theta, step=1e-5):
+    """Gradient of log UA with respect to the fitted vector, by central differences."""
+    grad = np.zeros(len(theta))
+    for i in range(layout.n_physical):
+        up, down = theta.copy(), theta.copy()
+        up[i] += step
+        down[i] -= step
+        try:
+            grad[i] = (
+                math.log(layout.network(up).heat_loss_coefficient_w_per_k()["total"])
+                - math.log(layout.network(down).heat_loss_coefficient_w_per_k()["total"])
+            ) / (2 * step)
+        except NetworkError:
+            grad[i] = 0.0
+    return grad
+
+
+def _refit_with_ua_prior(layout, sol, data, gains, block, ua_prior, model):
+    """Refit with a log-normal prior on UA weighted by the data's honest information."""
+    ua0, rel_sd = float(ua_prior[0]), float(ua_prior[1])
+    if not (ua0 > 0 and rel_sd > 0):
+        raise InputError(f"UA prior {ua_prior!r} needs a positive value and a positive relative sd")
+    theta = sol.x
+    lower, upper = layout.bounds()
+    span = upper - lower
+    free = np.flatnonzero(~((theta - lower < 1e-6 * span) | (upper - theta < 1e-6 * span)))
+    s_rms = float(np.sqrt(np.mean(sol.fun**2)))
+    tau_slow = layout.network(theta).time_constants_s()[0]
+    honest, how = _slow_mode_covariance(sol.jac[:, free], sol.fun, math.exp(-block * data.step_s / tau_slow))
+    try:
+        white = s_rms**2 * np.linalg.inv(sol.jac[:, free].T @ sol.jac[:, free])
+    except np.linalg.LinAlgError:
+        white = honest
+    grad = _log_ua_gradient(layout, theta)[free]
+    ratio = float(grad @ honest @ grad) / max(float(grad @ white @ grad), 1e-300)
+    weight = math.sqrt(max(ratio, 1.0)) * s_rms / rel_sd
+    start = {**layout.physical(theta), **layout.values(theta)}
+    start["_ua"] = layout.network(theta).heat_loss_coefficient_w_per_k()["total"]
+    start["_tau"] = tau_slow
+    new_layout, new_sol, _, _ = _fit_output_error(
+        model, data, gains, previous=start, block=block, prior=(math.log(ua0), weight)
+    )
+    info = {"ua_w_per_k": ua0, "relative_sd": rel_sd, "weight": weight, "information_ratio": ratio}
+    # The data's covariance is the one at the data's own optimum: at the prior-pulled point the
+    # residuals carry the pull, which is not noise.
+    info["_data_cov"] = (free, honest, how)
+    return new_layout, new_sol, info
+
+
 def _derived(layout: _Layout, theta):
     """Heat loss coefficient, time constants and total capacitance for a parameter vector."""
     net = layout.network(theta)
@@ -742,6 +797,7 @@ def calibrate(
     path=None,
     previous=None,
     energy_metrics=True,
+    ua_prior=None,
 ):
     """
     Calibrate one preset network on a log.
@@ -767,11 +823,25 @@ def calibrate(
     energy_metrics : bool
         Also compute the ASHRAE Guideline 14 heating-energy metrics (costs one extra
         simulation).
+    ua_prior : tuple of float, optional
+        ``(ua_w_per_k, relative_sd)``: a log-normal prior on the heat loss coefficient, e.g.
+        from the construction (output error only). The data and the prior are combined by
+        their information, the data's counted honestly (see Notes).
 
     Returns
     -------
     CalibrationResult
         Parameters, uncertainty, fit metrics, diagnostics and warnings.
+
+    Notes
+    -----
+    With a prior, the fit is first made without it; the ratio ``k`` of the honest (sandwich)
+    variance of log UA to the white-noise least-squares variance measures how much the
+    autocorrelated residuals overstate the data's information. The prior residual is then
+    weighted ``sqrt(k) s / sd_prior`` (``s`` the residual RMS), so that data and prior meet in
+    proportion to their true information, and the reported covariance adds the prior's
+    precision to the data's (Gaussian prior and likelihood, linearised: e.g. A. Gelman et
+    al., Bayesian Data Analysis, 3rd ed., ch. 14; from memory).
 
     Raises
     ------
@@ -791,6 +861,9 @@ def calibrate(
     started = _time.perf_counter()
     block = max(1, int(round(BLOCK_S / data.step_s)))
     layout, sol, observed, tried = _fit_output_error(model, data, gains, previous, block=block)
+    prior_info = None
+    if ua_prior is not None and method == "output_error":
+        layout, sol, prior_info = _refit_with_ua_prior(layout, sol, data, gains, block, ua_prior, model)
     theta = sol.x
     n = int(observed.sum())
     k = len(theta)
@@ -805,7 +878,25 @@ def calibrate(
         free = np.flatnonzero(~at_bound)
         cov = np.full((k, k), np.nan)
         tau_slow = layout.network(theta).time_constants_s()[0]
-        sub_cov, how = _slow_mode_covariance(sol.jac[:, free], sol.fun, math.exp(-block * data.step_s / tau_slow))
+        data_rows = slice(0, sol.fun.size - (1 if prior_info else 0))
+        sub_cov, how = _slow_mode_covariance(
+            sol.jac[data_rows][:, free], sol.fun[data_rows], math.exp(-block * data.step_s / tau_slow)
+        )
+        if prior_info:
+            data_free, data_cov, data_how = prior_info.pop("_data_cov")
+            mapped = np.full((k, k), np.nan)
+            mapped[np.ix_(data_free, data_free)] = data_cov
+            if np.all(np.isfinite(mapped[np.ix_(free, free)])):
+                sub_cov = mapped[np.ix_(free, free)]
+                how = data_how + " at the data's own optimum"
+            # Add the prior's precision on log UA to the data's (linearised Gaussian update).
+            grad = _log_ua_gradient(layout, theta)[free]
+            try:
+                precision = np.linalg.inv(sub_cov) + np.outer(grad, grad) / prior_info["relative_sd"] ** 2
+                sub_cov = np.linalg.inv(precision)
+                how += f"; combined with a log-normal UA prior ({prior_info['ua_w_per_k']:.1f} W/K, sd {prior_info['relative_sd']:.0%})"
+            except np.linalg.LinAlgError:
+                pass
         cov[np.ix_(free, free)] = sub_cov
         cov_note = "hourly residual blocks: " + how
         success, message, nfev = bool(sol.success), str(sol.message), int(sol.nfev)
@@ -960,6 +1051,7 @@ def calibrate(
                 "success": success,
                 "nfev": nfev,
                 "noise": noise,
+                "ua_prior": prior_info,
                 "starts": tried,
                 "seconds": _time.perf_counter() - started,
                 "initial_states": {n_: v for n_, v in layout.values(theta).items() if n_.startswith("x0_")},
@@ -1151,7 +1243,8 @@ def predict(result: CalibrationResult, log, x0=None):
     return out
 
 
-def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, path=None, models=MODEL_ORDER):
+def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, path=None, models=MODEL_ORDER,
+                   ua_prior=None):
     """
     Fit the presets, compare them and keep the simplest adequate one.
 
@@ -1169,6 +1262,8 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         Log file name for messages.
     models : sequence of str
         Candidates, simplest first.
+    ua_prior : tuple of float, optional
+        ``(ua_w_per_k, relative_sd)``, passed to every fit (see :func:`calibrate`).
 
     Returns
     -------
@@ -1201,7 +1296,8 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
             continue
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            res = calibrate(train, model=model, gains=gains, path=path, previous=previous, energy_metrics=False)
+            res = calibrate(train, model=model, gains=gains, path=path, previous=previous, energy_metrics=False,
+                            ua_prior=ua_prior)
         fitted[model] = res
         previous = {**res.parameters, "_ua": res.heat_loss_coefficient_w_per_k, "_tau": res.time_constants_h[0] * 3600}
         resid = res._residuals.to_numpy()
@@ -1245,7 +1341,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     start = fitted[chosen].parameters
     # Refit on all data, starting from the training fit.
     final = calibrate(
-        data, model=chosen, gains=gains, path=path,
+        data, model=chosen, gains=gains, path=path, ua_prior=ua_prior,
         previous={**start, "_ua": fitted[chosen].heat_loss_coefficient_w_per_k, "_tau": fitted[chosen].time_constants_h[0] * 3600},
     )
     final.extras["model_comparison"] = {
