@@ -325,7 +325,10 @@ class _Reader:
         value = table[name]
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             self.fail(key, f"{value!r} is not a number")
-        value = float(value)
+        try:
+            value = float(value)
+        except OverflowError:  # a TOML integer beyond the float range
+            value = math.inf
         if not math.isfinite(value):
             self.fail(key, f"{value} is not finite")
         if positive and value <= 0:

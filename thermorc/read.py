@@ -645,6 +645,8 @@ def _check_stage(stage, k, source):
         stage["rating_unit"] = _check_unit("heating_w", stage.get("rating_unit", "W"), source,
                                            f"{where}.rating_unit")
         rating = stage["rating"]
+        if isinstance(rating, int) and abs(rating) > 1e300:  # a TOML integer beyond the float range
+            rating = math.inf
         if not isinstance(rating, (int, float)) or not math.isfinite(rating) or rating <= 0:
             raise InputError(f"{show(rating)} is not a positive number", path=source, column=f"{where}.rating")
     else:
@@ -666,7 +668,7 @@ def _check_cop(table, unit, source, where):
         table = [[0.0, float(table)]]
     try:
         arr = np.array(table, dtype=float)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         arr = np.empty((0, 0))
     if arr.ndim != 2 or arr.shape[1] != 2 or arr.shape[0] < 1 or not np.isfinite(arr).all():
         raise InputError("expected a COP number or a list of [outdoor temperature, COP] pairs",

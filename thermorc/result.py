@@ -230,6 +230,8 @@ class CalibrationResult:
             raise InputError("'parameters' is missing or not an object", path=path, column="parameters")
         clean = {}
         for key, value in params.items():
+            if isinstance(value, int) and abs(value) > 1e300:  # a JSON integer beyond the float range
+                value = math.inf
             if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
                 raise InputError(f"{value!r} is not a finite number", path=path, column=f"parameters.{key}")
             if abs(value) > _PARAMETER_LIMIT:

@@ -249,7 +249,10 @@ def parse_schedule(data, path=None, prefix="", name=None):
 def _setpoint(value, path, key):
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise InputError(f"{value!r} is not a number (expected a setpoint in degC)", path=path, column=key)
-    v = float(value)
+    try:
+        v = float(value)
+    except OverflowError:  # a TOML integer beyond the float range
+        v = math.inf
     lo, hi = SETPOINT_RANGE_C
     if not (math.isfinite(v) and lo <= v <= hi):
         raise InputError(f"{v:g} degC is outside the plausible range (expected {lo:g} to {hi:g} degC)",

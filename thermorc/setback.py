@@ -235,6 +235,8 @@ def parse_strategies(data, path=None):
 def _positive(value, path, key, unit, high=math.inf):
     if value is None:
         return None
+    if isinstance(value, int) and abs(value) > 1e300:  # a TOML integer beyond the float range
+        value = math.inf
     if (isinstance(value, bool) or not isinstance(value, (int, float))
             or not (math.isfinite(value) and 0 < value <= high)):
         raise InputError(f"{value!r} is not a positive number (expected {unit} > 0 and <= {high:g})", path=path,

@@ -733,3 +733,41 @@ def test_hostile_manifest(tmp_path, k, case):
 def test_manifest_folder_is_refused_by_the_parser(tmp_path):
     bad = _put(tmp_path / "hostile_manifest.csv", DIR)
     _check_parser(tmp_path, _manifest_argv(tmp_path, bad, 0))
+
+
+# ------------------------------------------------------------------------------------------
+# Formula injection reaching a CSV output comes out escaped (OWASP CSV Injection)
+# ------------------------------------------------------------------------------------------
+
+INJECTIONS = ["=cmd|' /C calc'!A0", "+SUM(1;2)", "-2+3+cmd|' /C calc'!A0", "@SUM(A1:A9)"]
+
+
+def test_strategy_names_are_escaped_in_the_comparison_csv(tmp_path):
+    body = ['heater = "ideal"', "[baseline]", 'name = "steady"', "constant_c = 20.0"]
+    for i, text in enumerate(INJECTIONS):
+        body += ["[[strategy]]", f"name = {json.dumps(text)}", f'week = {{ everyday = [["06:00", 20.0], ["22:00", {16 + i}.0]] }}']
+    strategies = tmp_path / "strategies.toml"
+    strategies.write_text("\n".join(body) + "\n", encoding="utf-8")
+    result = write_good_result(tmp_path / "result.json")
+    out = tmp_path / "comparison.csv"
+    r = runner.invoke(app, ["setback", str(result), "--weather", str(TMY3), "--strategies", str(strategies),
+                            "--step-s", "3600", "--out", str(out), "--quiet"])
+    assert r.exit_code == 0, r.output
+    with open(out, newline="", encoding="utf-8") as handle:
+        first_cells = [row[0] for row in csv.reader(handle)][1:]
+    # Every name is there, each with the leading apostrophe that keeps it text in a spreadsheet.
+    assert sorted(first_cells[1:]) == sorted("'" + t for t in INJECTIONS)
+    assert first_cells[0] == "steady"
+
+
+def test_write_csv_escapes_cells_index_and_header(tmp_path):
+    import pandas as pd
+
+    from thermorc.write import write_csv
+
+    frame = pd.DataFrame({"note": INJECTIONS, "=HYPERLINK(\"x\")": [1, 2, 3, 4]},
+                         index=pd.Index(INJECTIONS, name="name"))
+    write_csv(tmp_path / "t.csv", frame)
+    rows = list(csv.reader(io.StringIO((tmp_path / "t.csv").read_text(encoding="utf-8"))))
+    cells = [c for row in rows for c in row]
+    assert not any(c.startswith(("=", "+", "-", "@")) for c in cells), cells
