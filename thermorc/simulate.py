@@ -338,8 +338,9 @@ def simulate(network: Network, inputs, x0=None, dt_s=None, boundary_hold="foh", 
         raise InputError("no input rows to simulate")
     dts = _time_steps(index, dt_s, n_rows)
     x_start = _initial_state(network, space, u[0], x0)
-    states, means, x_end = run_modes(space, u, dts, x_start, _hold_mask(space, boundary_hold), means=interval_means)
-    return _result(space, index, u, states, means, x_end, inputs)
+    foh_mask = _hold_mask(space, boundary_hold)
+    states, means, x_end = run_modes(space, u, dts, x_start, foh_mask, means=interval_means)
+    return _result(space, index, u, states, means, x_end, inputs, foh_mask=foh_mask)
 
 
 def _sections_lfilter(a, drive, z0, out):
@@ -468,14 +469,17 @@ def _outputs(space, states, u):
     return states @ space.c.T + u @ space.d.T
 
 
-def _result(space, index, u, states, means, x_end, inputs, shortfall=None, message="ok"):
+def _result(space, index, u, states, means, x_end, inputs, shortfall=None, message="ok", foh_mask=None):
     y = _outputs(space, states, u)
     mean_temps = None
     if means is not None:
-        # Interval means of the massless nodes are linear in the state and input means.
+        # Interval means of the massless nodes are linear in the state and input means; only
+        # inputs held linearly have the mid-point mean, held ones keep their value.
         u_mean = u.copy()
-        nb = space.n_boundaries
-        u_mean[:-1, :nb] = 0.5 * (u[:-1, :nb] + u[1:, :nb])
+        if foh_mask is None:
+            foh_mask = np.zeros(u.shape[1], dtype=bool)
+            foh_mask[: space.n_boundaries] = True
+        u_mean[:-1, foh_mask] = 0.5 * (u[:-1, foh_mask] + u[1:, foh_mask])
         mean_temps = pd.DataFrame(_outputs(space, means, u_mean), index=index, columns=list(space.outputs))
     frame_inputs = inputs if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u, index=index, columns=space.inputs)
     short = None if shortfall is None else pd.Series(shortfall, index=index, name="shortfall_w")
