@@ -710,6 +710,17 @@ ho^{|i-j|}`, with :math:`c` fitted to
     )
 
 
+def _lognormal_interval(value, se_log):
+    """95 % interval of a positive quantity from the standard error of its logarithm.
+
+    A standard error too large to exponentiate means the data say nothing about the
+    quantity: the interval is then undefined (NaN), and the interval warning says so.
+    """
+    if not math.isfinite(se_log) or Z95 * se_log > 700.0:
+        return [math.nan, math.nan]
+    return [value * math.exp(-Z95 * se_log), value * math.exp(Z95 * se_log)]
+
+
 def _log_ua_gradient(layout, theta, step=1e-5):
     """Gradient of log UA with respect to the fitted vector, by central differences."""
     grad = np.zeros(len(theta))
@@ -952,14 +963,14 @@ def calibrate(
         value = physical[p.name]
         if p.log:
             std_errors[p.name] = value * se_theta[i]
-            intervals[p.name] = [value * math.exp(-Z95 * se_theta[i]), value * math.exp(Z95 * se_theta[i])]
+            intervals[p.name] = _lognormal_interval(value, se_theta[i])
         else:
             std_errors[p.name] = se_theta[i]
             intervals[p.name] = [value - Z95 * se_theta[i], value + Z95 * se_theta[i]]
     for name, value in derived.items():
         s = se_log.get(name, math.nan)
         std_errors[name] = value * s
-        intervals[name] = [value * math.exp(-Z95 * s), value * math.exp(Z95 * s)] if math.isfinite(s) else [math.nan, math.nan]
+        intervals[name] = _lognormal_interval(value, s)
     # Warnings a practitioner should see: strong correlation, wide intervals, bounds.
     names = layout.names[: layout.n_physical]
     sub = cov[: layout.n_physical, : layout.n_physical]
