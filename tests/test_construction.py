@@ -1,7 +1,7 @@
 """Constructions: ISO 6946 U-values, ISO 13786 capacities, Biot numbers and lumping error.
 
 Every check names its source. "check-values" is the project's research note of published
-values (/work/shared/check-values.md, section numbers given); its confidence tags are repeated.
+values (shared/check-values.md beside the repository, section numbers given); its confidence tags are repeated.
 """
 
 import copy

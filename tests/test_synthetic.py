@@ -2,7 +2,7 @@
 the first law, scipy's step response, pvlib's clear sky and a hand-worked transposition.
 
 "check-values" is the project's research note of published values
-(/work/shared/check-values.md, section numbers given); its confidence tags are repeated.
+(shared/check-values.md beside the repository, section numbers given); its confidence tags are repeated.
 """
 
 import math
