@@ -1,6 +1,5 @@
 """RESULT.json container: round trip, rebuilding the model, checked reading."""
 
-import json
 
 import numpy as np
 import pandas as pd

@@ -42,7 +42,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-import scipy.linalg
 import scipy.optimize
 import scipy.signal
 
@@ -78,8 +77,9 @@ C_BOUNDS_J_PER_K = (1e4, 1e10)
 APERTURE_BOUNDS_M2 = (1e-3, 200.0)
 GAINS_BOUNDS_W = (0.0, 20000.0)
 STATE_BOUNDS_C = (-50.0, 60.0)
+# Residuals are compared as hourly means: thermostat cycling within the hour is not the
+# dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0
-FIT_SOLAR_SHARE = True
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -333,7 +333,7 @@ class _Layout:
             self.params.append(_Param(name, True, lo, hi, start[name]))
         if data.has_solar:
             self.params.append(_Param("solar_aperture_m2", True, *APERTURE_BOUNDS_M2, start["solar_aperture_m2"]))
-            if model != "1R1C" and FIT_SOLAR_SHARE:
+            if model != "1R1C":
                 # Sun lands on floors and furniture as much as on the air: let the data split it.
                 self.params.append(_Param("solar_to_envelope_share", False, 0.0, 1.0, start.get("solar_to_envelope_share", 0.3)))
         if gains == "day_night":
@@ -683,7 +683,6 @@ ho^{|i-j|}`, with :math:`c` fitted to
     # C. R. Rao, "Estimation of variance and covariance components - MINQUE theory,"
     # J. Multivariate Anal., vol. 1, no. 3, pp. 257-275, 1971).
     rj = _ar1_times(jac, rho)
-    rrj = _ar1_times(rj, rho)
     jrj = jac.T @ rj
     lags = np.arange(1, n)
     tr_r = float(n)
