@@ -773,3 +773,62 @@ def test_write_csv_escapes_cells_index_and_header(tmp_path):
     rows = list(csv.reader(io.StringIO((tmp_path / "t.csv").read_text(encoding="utf-8"))))
     cells = [c for row in rows for c in row]
     assert not any(c.startswith(("=", "+", "-", "@")) for c in cells), cells
+
+
+# ------------------------------------------------------------------------------------------
+# Paths in a manifest that leave its folder, name a folder or hold a NUL byte
+# ------------------------------------------------------------------------------------------
+
+def test_manifest_paths_out_of_the_folder_become_error_rows(tmp_path):
+    # docs/fleet.md: a home's own files are not manifest errors; that home gets an error row
+    # naming the file and the others run. Nothing here may crash the run or read as a log.
+    import pandas as pd
+
+    (tmp_path / "log.csv").write_text(GOOD_LOG, encoding="utf-8")
+    manifest = tmp_path / "homes.toml"
+    manifest.write_text(
+        '[[home]]\nid = "traversal"\nlog = "../../../../../../../../../../etc/passwd"\n'
+        '[[home]]\nid = "folder"\nlog = "logs/../../../../../../../../etc"\n'
+        '[[home]]\nid = "nul"\nlog = "a\\u0000b.csv"\n'
+        '[[home]]\nid = "=cmd|\' /C calc\'!A0"\nlog = "log.csv"\n', encoding="utf-8")
+    out = tmp_path / "out" / "RESULTS.parquet"
+    r = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--quiet", "--model", "1R1C"])
+    assert r.exit_code == 0, r.output
+    assert "Traceback" not in r.output
+    rows = pd.read_parquet(out).set_index("home_id")
+    assert (rows["status"] == "error").all()
+    assert rows.loc["folder", "error"].startswith("etc: is a folder")
+    assert "passwd" in rows.loc["traversal", "error"] and "internal" not in rows.loc["traversal", "error"]
+    # The summary table is a CSV: a home id that looks like a formula must not reach it raw.
+    for csv_file in out.parent.glob("*.csv"):
+        for row in csv.reader(io.StringIO(csv_file.read_text(encoding="utf-8"))):
+            assert not any(c.startswith(("=", "+", "@")) for c in row), row
+
+
+# ------------------------------------------------------------------------------------------
+# A few through a real process: the stderr a user sees is one line
+# ------------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("command, content, needle", [
+    ("inspect", "\ufeff" + _log(row=3, column="heating_w", value="=cmd|' /C calc'!A0"), r"row 3, column 'heating_w'"),
+    ("biot", "[air_leakage]\nach = nan\n", r"column '"),
+    ("forecast", '{"model": "2R2C", "parameters": {"c_indoor_j_per_k": Infinity}}', r"column 'parameters"),
+])
+def test_one_line_in_a_real_process(tmp_path, command, content, needle):
+    import re
+    import subprocess
+    import sys
+
+    bad = tmp_path / {"inspect": "log.csv", "biot": "c.toml", "forecast": "r.json"}[command]
+    bad.write_text(content, encoding="utf-8")
+    out = tmp_path / "out.csv"
+    out.write_bytes(b"SENTINEL\n")
+    argv = {"inspect": ["inspect", str(bad), "--out", str(out)],
+            "biot": ["biot", str(bad), "--out", str(out)],
+            "forecast": ["forecast", str(bad), "--weather", str(TMY3), "--out", str(out)]}[command]
+    proc = subprocess.run([sys.executable, "-m", "thermorc", *argv], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 2, proc.stderr
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(f"thermorc: error: {bad.name}") and re.search(needle, lines[0]), lines
+    assert out.read_bytes() == b"SENTINEL\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([bad.name, out.name])
