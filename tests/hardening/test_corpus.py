@@ -319,6 +319,42 @@ WEATHER_CASES = [(n, c, None) for n, c, _ in GENERIC] + [
 ]
 
 
+def _epw_text():
+    import tempfile
+
+    from tests.test_read import _epw_from_tmy3
+
+    with tempfile.TemporaryDirectory() as folder:
+        path = pathlib.Path(folder) / "w.epw"
+        _epw_from_tmy3(path)
+        return path.read_text(encoding="utf-8")
+
+
+_E = _epw_text().splitlines()
+
+
+def _epw(row, col, value):
+    lines = list(_E)
+    cells = lines[row - 1].split(",")
+    cells[col] = value
+    lines[row - 1] = ",".join(cells)
+    return "\n".join(lines) + "\n"
+
+
+# EPW: 8 header lines, data from line 9; field 6 is the dry-bulb temperature, 13 the GHI and 21
+# the wind speed (EnergyPlus Auxiliary Programs, weather file format).
+WEATHER_CASES += [
+    ("epw_drybulb_text", _epw(20, 6, "warm"), r"row 20, column 'temp_air'"),
+    ("epw_drybulb_missing_code", _epw(21, 6, "99.9"), r"row 21, column 'temp_air'"),
+    ("epw_ghi_1e308", _epw(22, 13, "1e308"), r"row 22, column 'ghi'"),
+    ("epw_wind_negative", _epw(23, 21, "-5"), r"row 23, column 'wind_speed'"),
+    ("epw_tz_text", "\n".join([_E[0].replace(",-5.0,", ",east,")] + _E[1:]) + "\n", None),
+    ("epw_latitude_text", "\n".join([_E[0].replace(",36.1,", ",north,")] + _E[1:]) + "\n", None),
+    ("epw_rows_missing", "\n".join(_E[:5000]) + "\n", None),
+    ("epw_month_13", _epw(30, 1, "13"), None),
+]
+
+
 def _weather_argv(tmp_path, bad, k):
     result = write_good_result(tmp_path / "result.json")
     which = k % 3
