@@ -80,6 +80,7 @@ STATE_BOUNDS_C = (-50.0, 60.0)
 # Residuals are compared as hourly means: thermostat cycling within the hour is not the
 # dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0
+SCOUT_NFEV = 30
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -499,7 +500,19 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
     """
     best = None
     tried = []
-    for start in _start_values(model, data, previous):
+    starts = _start_values(model, data, previous)
+    # With several starts each gets a short run; only the best is then run to convergence.
+    scout_nfev = max_nfev if len(starts) == 1 else min(max_nfev, SCOUT_NFEV)
+
+    def solve(residuals, theta0, lower, upper, nfev):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return scipy.optimize.least_squares(
+                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=1.0, max_nfev=nfev, diff_step=1e-6,
+                ftol=1e-10, xtol=1e-10, gtol=1e-8,
+            )
+
+    for start in starts:
         layout = _Layout(model, data, gains, start)
         lower, upper = layout.bounds()
         theta0 = np.clip(layout.start_theta(), lower + 1e-9, upper - 1e-9)
@@ -524,16 +537,17 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
                 out = np.append(out, prior[1] * (log_ua - prior[0]))
             return out
 
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            sol = scipy.optimize.least_squares(
-                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=1.0, max_nfev=max_nfev, diff_step=1e-6,
-                ftol=1e-12, xtol=1e-12, gtol=1e-10,
-            )
+        sol = solve(residuals, theta0, lower, upper, scout_nfev)
         tried.append({"cost": float(sol.cost), "status": int(sol.status), "nfev": int(sol.nfev)})
         if best is None or sol.cost < best[1].cost:
             best = (layout, sol, observed, residuals)
     layout, sol, observed, residuals = best
+    if sol.status == 0 and scout_nfev < max_nfev:  # the scouting run hit its limit: go on
+        lower, upper = layout.bounds()
+        more = solve(residuals, np.clip(sol.x, lower, upper), lower, upper, max_nfev)
+        tried.append({"cost": float(more.cost), "status": int(more.status), "nfev": int(more.nfev), "continued": True})
+        more.nfev += sol.nfev
+        sol = more
     return layout, sol, observed, tried
 
 
