@@ -203,6 +203,8 @@ def parse_times(raw, path, column, row0, tz=None, fmt=None, ambiguous="infer", n
             raise InputError("empty time (expected a date and time)", path=path, row=row0 + i, column=column)
         aware = parsed.tz is not None
     else:
+        # Binary cells (a Parquet byte-string column) are shown as text, never decoded blindly.
+        raw = raw.map(lambda v: repr(v) if isinstance(v, bytes) else v) if raw.dtype == object else raw
         text = raw.astype("string").str.strip()
         empty = text.isna() | (text == "")
         if empty.any():
@@ -411,6 +413,8 @@ def parse_numbers(raw, path, column, row0, decimal="."):
         values = raw.to_numpy(dtype=float, na_value=np.nan)
         text = None
     else:
+        # Binary cells (a Parquet byte-string column) are shown as text, never decoded blindly.
+        raw = raw.map(lambda v: repr(v) if isinstance(v, bytes) else v) if raw.dtype == object else raw
         text = raw.astype("string").str.strip()
         cleaned = text.str.replace(",", ".", regex=False) if decimal == "," else text
         values = pd.to_numeric(cleaned, errors="coerce").to_numpy(dtype=float, na_value=np.nan)

@@ -868,3 +868,43 @@ def test_one_line_in_a_real_process(tmp_path, command, content, needle):
     assert len(lines) == 1 and lines[0].startswith(f"thermorc: error: {bad.name}") and re.search(needle, lines[0]), lines
     assert out.read_bytes() == b"SENTINEL\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted([bad.name, out.name])
+
+
+# ------------------------------------------------------------------------------------------
+# Parquet logs with hostile column types (written here with pyarrow through pandas)
+# ------------------------------------------------------------------------------------------
+
+def _parquet_frame(case):
+    import numpy as np
+    import pandas as pd
+
+    idx = pd.date_range("2024-01-10", periods=24, freq="15min", tz="America/New_York")
+    base = pd.DataFrame({"time": idx, "indoor_c": 20.0 + np.arange(24) * 0.01, "heating_w": 1000.0,
+                         "outdoor_c": 2.0})
+    return {
+        "time_integers": lambda: base.assign(time=np.arange(24)),
+        "time_text": lambda: base.assign(time=["=cmd|' /C calc'!A0"] * 24),
+        "time_naive": lambda: base.assign(time=idx.tz_localize(None)),
+        "time_bytes": lambda: base.assign(time=[b"\xff\x00"] * 24),
+        "time_repeated": lambda: base.assign(time=[idx[0]] * 24),
+        "time_1678": lambda: base.assign(time=pd.date_range("1678-01-01", periods=24, freq="15min", tz="UTC")),
+        "indoor_text": lambda: base.assign(indoor_c=["warm"] * 24),
+        "indoor_bool": lambda: base.assign(indoor_c=True),
+        "indoor_bytes": lambda: base.assign(indoor_c=[b"\x00\xff"] * 24),
+        "indoor_lists": lambda: base.assign(indoor_c=[[1.0, 2.0]] * 24),
+        "heating_inf": lambda: base.assign(heating_w=np.where(np.arange(24) == 5, np.inf, 1000.0)),
+        "heating_negative": lambda: base.assign(heating_w=-1.0),
+        "no_indoor": lambda: base.drop(columns="indoor_c"),
+    }[case]()
+
+
+PARQUET_CASES = ["time_integers", "time_text", "time_naive", "time_bytes", "time_repeated", "time_1678",
+                 "indoor_text", "indoor_bool", "indoor_bytes", "indoor_lists", "heating_inf", "heating_negative",
+                 "no_indoor"]
+
+
+@pytest.mark.parametrize("k, case", list(enumerate(PARQUET_CASES)), ids=PARQUET_CASES)
+def test_hostile_parquet_log(tmp_path, k, case):
+    bad = tmp_path / "hostile_log.parquet"
+    _parquet_frame(case).to_parquet(bad)
+    _check(tmp_path, _log_argv(tmp_path, bad, k), bad.name, True, r"column '", variants=(k % 2 == 1,))
