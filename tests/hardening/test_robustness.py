@@ -189,3 +189,30 @@ def test_result_records_version_and_input_hashes(tmp_path, simulated_log_csv):
     # SHA-256 of the file's bytes (FIPS 180-4), computed here independently.
     assert prov["inputs"]["log"]["sha256"] == hashlib.sha256(simulated_log_csv.read_bytes()).hexdigest()
     assert prov["inputs"]["log"]["file"] == simulated_log_csv.name
+
+
+# ------------------------------------------------------------------------------------------
+# Interrupted writes leave the old file and no temporary file
+# ------------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("error", [RuntimeError, KeyboardInterrupt])
+def test_an_interrupted_write_leaves_the_old_file(tmp_path, monkeypatch, error):
+    from thermorc.write import atomic_write, write_json
+
+    target = tmp_path / "out.json"
+    target.write_bytes(b"old contents\n")
+    with pytest.raises(error):
+        with atomic_write(target) as handle:
+            handle.write("half of a new file")
+            raise error()
+    assert target.read_bytes() == b"old contents\n"
+    assert [p.name for p in tmp_path.iterdir()] == ["out.json"]
+
+    def exploding_fsync(fd):  # the disk fails at the last moment, after every byte was written
+        raise error()
+
+    monkeypatch.setattr("os.fsync", exploding_fsync)
+    with pytest.raises(error):
+        write_json(target, {"a": 1.0})
+    assert target.read_bytes() == b"old contents\n"
+    assert [p.name for p in tmp_path.iterdir()] == ["out.json"]
