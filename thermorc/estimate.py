@@ -393,7 +393,7 @@ class _Layout:
         v = self.values(theta)
         if self.gains == "day_night":
             return np.where(self.day[rows], v["internal_gains_day_w"], v["internal_gains_night_w"])
-        return np.full(len(self.data.index[rows]), v["internal_gains_w"])
+        return np.full(len(self.data.y[rows]), v["internal_gains_w"])
 
     def initial_state(self, theta, k, seg):
         v = self.values(theta)

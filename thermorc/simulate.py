@@ -140,6 +140,10 @@ def phi_functions(x):
        pp. 209-286, 2010, doi:10.1017/S0962492910000048.
     """
     x = np.asarray(x, dtype=float)
+    if x.ndim == 1 and x.size and x.min() >= _SERIES_BELOW:
+        # The common case (no mode slow enough to need the series) without the masked branches.
+        em1 = np.expm1(-x)
+        return -em1 / x, (x + em1) / x**2, (x * x / 2 - x - em1) / x**3
     small = x < _SERIES_BELOW
     xs = np.where(small, 1.0, x)  # keeps the exact branch finite where it is not used
     em1 = np.expm1(-xs)
