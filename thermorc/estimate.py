@@ -81,6 +81,9 @@ STATE_BOUNDS_C = (-50.0, 60.0)
 # dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0
 SCOUT_NFEV = 30
+# Log R and log C have similar sensitivities only after scaling: let the solver scale by the
+# Jacobian's columns (scipy.optimize.least_squares, x_scale="jac").
+X_SCALE = "jac"
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -508,7 +511,7 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             return scipy.optimize.least_squares(
-                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=1.0, max_nfev=nfev, diff_step=1e-6,
+                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=X_SCALE, max_nfev=nfev, diff_step=1e-6,
                 ftol=1e-10, xtol=1e-10, gtol=1e-8,
             )
 
