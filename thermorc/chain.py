@@ -16,7 +16,7 @@ import pandas as pd
 
 from thermorc.align import AlignedData, align, align_weather
 from thermorc.errors import DataQualityWarning, InputError
-from thermorc.read import read_log, read_weather
+from thermorc.read import _sniff_weather, check_file, read_log, read_weather
 
 __all__ = ["PreparedLog", "prepare_log", "parse_site", "calibrate_files", "simulate_files", "vertical_irradiance"]
 
@@ -132,7 +132,10 @@ def prepare_log(
     need_sun = "ghi_w_m2" not in frame.columns or frame["ghi_w_m2"].isna().all()
     if weather_path is not None:
         year = int(frame.index[0].year)
-        weather, weather_meta = read_weather(weather_path, tz=frame.index.tz, coerce_year=year)
+        # Only typical-year files (TMY3, EPW) move to the log's year; a weather CSV is dated
+        # measured weather, and coercing it would fold a log across New Year onto one year.
+        typical = _sniff_weather(check_file(weather_path)) != "csv"
+        weather, weather_meta = read_weather(weather_path, tz=frame.index.tz, coerce_year=year if typical else None)
         if weather_meta.get("source_format") in ("tmy3", "epw") and frame.index[-1].year != year:
             # A log across New Year needs the typical year twice.
             nxt, _ = read_weather(weather_path, tz=frame.index.tz, coerce_year=year + 1)
@@ -151,7 +154,7 @@ def prepare_log(
                     frame.loc[holes, column] = on_grid.loc[holes, column]
                     notes.append(f"{int(holes.sum())} missing {column} values filled from the weather file")
         for key in ("latitude", "longitude", "altitude_m"):
-            if key in weather_meta and key not in site:
+            if weather_meta.get(key) is not None and key not in site:  # a CSV may not give its site
                 site[key] = weather_meta[key]
         notes.extend(weather_meta.get("notes", []))
     elif need_outdoor:

@@ -1222,6 +1222,7 @@ def _read_weather_csv(path, tz, coerce_year):
     text = read_text(path)
     lines = text.splitlines()
     meta = {"latitude": None, "longitude": None, "altitude_m": 0.0, "name": None}
+    meta_rows = {}
     skip = 0
     for line in lines:
         if not line.startswith("#"):
@@ -1235,6 +1236,12 @@ def _read_weather_csv(path, tz, coerce_year):
             except ValueError:
                 raise InputError(f"{show(value.strip())} is not a number", path=path, row=skip,
                                  column=key) from None
+            meta_rows[key] = skip
+    for key, (lo, hi) in {"latitude": (-90.0, 90.0), "longitude": (-180.0, 180.0), "altitude_m": (-500.0, 9000.0)}.items():
+        value = meta[key]
+        if value is not None and not (math.isfinite(value) and lo <= value <= hi):
+            raise InputError(f"{value:g} is outside {lo:g} to {hi:g} (expected the site's {key})", path=path,
+                             row=meta_rows.get(key), column=key)
     frame = csv_frame(text, path, ",", skip)
     row0 = skip + 2
     blank = frame.isna().all(axis=1).to_numpy()
@@ -1274,6 +1281,11 @@ def _read_weather_csv(path, tz, coerce_year):
             raise InputError("has no values (every cell is empty)", path=path, column=col)
         data[col] = v
     if coerce_year is not None:
+        leap_day = (data.index.month == 2) & (data.index.day == 29)
+        if leap_day.any() and not pd.Timestamp(year=int(coerce_year), month=1, day=1).is_leap_year:
+            i = int(np.flatnonzero(leap_day)[0])
+            raise InputError(f"29 February cannot be moved to {coerce_year}, a common year (expected a weather file "
+                             "without a leap day, or its own dates)", path=path, row=int(rows[i]), column="time")
         data.index = pd.DatetimeIndex([t.replace(year=int(coerce_year)) for t in data.index], name="time")
         notes.append(f"rows coerced to the year {coerce_year}")
     meta.update({"path": path, "source_format": "csv", "tz": str(data.index.tz), "notes": notes})

@@ -216,3 +216,25 @@ def test_an_interrupted_write_leaves_the_old_file(tmp_path, monkeypatch, error):
         write_json(target, {"a": 1.0})
     assert target.read_bytes() == b"old contents\n"
     assert [p.name for p in tmp_path.iterdir()] == ["out.json"]
+
+
+def test_log_across_new_year_with_a_dated_weather_csv_without_site(tmp_path):
+    # Measured weather keeps its own dates (only typical years are moved to the log's year),
+    # and a weather CSV need not name its site.
+    from thermorc.chain import prepare_log
+
+    hours = pd.date_range("2024-12-20", "2025-01-20", freq="h", tz="UTC")
+    pd.DataFrame({"time": [t.isoformat() for t in hours], "outdoor_c": np.arange(len(hours)) % 7 - 3.0,
+                  "ghi_w_m2": 0.0}).to_csv(tmp_path / "weather.csv", index=False)
+    stamps = pd.date_range("2024-12-21", "2025-01-19", freq="15min", tz="UTC")
+    rng = np.random.default_rng(0)
+    pd.DataFrame({"time": [t.isoformat() for t in stamps], "indoor_c": 20 + rng.normal(0, 0.5, len(stamps)),
+                  "heating_w": rng.uniform(0, 3000, len(stamps))}).to_csv(tmp_path / "log.csv", index=False)
+    prepared = prepare_log(tmp_path / "log.csv", weather_path=tmp_path / "weather.csv")
+    frame = prepared.data
+    assert frame["outdoor_c"].notna().all()
+    # Linear interpolation of the hourly readings at the log's stamps, e.g. 2025-01-05 12:15.
+    t = pd.Timestamp("2025-01-05T12:15Z")
+    k = hours.get_loc(t.floor("h"))
+    expected = (k % 7 - 3.0) + 0.25 * (((k + 1) % 7 - 3.0) - (k % 7 - 3.0))
+    assert frame.loc[t, "outdoor_c"] == pytest.approx(expected)
