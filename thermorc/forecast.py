@@ -339,8 +339,9 @@ def thermostat(network, inputs, setpoint_c, capacity_w, deadband_k=DEFAULT_DEADB
     if capacity_w is None or not float(capacity_w) > 0:
         raise InputError(f"an on/off thermostat needs a heater capacity > 0 W (got {capacity_w!r})",
                          column="capacity_w")
-    if not float(deadband_k) >= 0:
-        raise InputError(f"deadband is {deadband_k!r} K (expected >= 0)", column="deadband_k")
+    # 20 K is far wider than any thermostat's differential (common practice); it catches inf.
+    if not 0 <= float(deadband_k) <= 20:
+        raise InputError(f"deadband is {deadband_k!r} K (expected 0 to 20 K)", column="deadband_k")
     space = network.state_space()
     frame = inputs.assign(**{channel: 0.0})
     u = frame[list(space.inputs)].to_numpy(dtype=float)

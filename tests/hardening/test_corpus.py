@@ -911,3 +911,23 @@ def test_hostile_parquet_log(tmp_path, k, case):
     bad = tmp_path / "hostile_log.parquet"
     _parquet_frame(case).to_parquet(bad)
     _check(tmp_path, _log_argv(tmp_path, bad, k), bad.name, True, r"column '", variants=(k % 2 == 1,))
+
+
+# ------------------------------------------------------------------------------------------
+# Options the parser lets through (typer's min/max pass nan and inf): the library refuses them
+# ------------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("extra, needle", [
+    (["--setpoint", "nan"], r"column 'constant_c'"),
+    (["--setpoint", "1e308"], r"column 'constant_c'"),
+    (["--capacity-w", "inf"], r"column 'capacity_w'"),
+    (["--heater", "thermostat", "--capacity-w", "9000", "--deadband-k", "inf"], r"column 'deadband_k'"),
+])
+def test_non_finite_forecast_options(tmp_path, extra, needle):
+    result = write_good_result(tmp_path / "result.json")
+    out = _outputs(tmp_path, existing=True)
+    before = snapshot(out)
+    r = runner.invoke(app, ["forecast", str(result), "--weather", str(TMY3), "--out", str(out / "out.csv"),
+                            "--draws", "0", *extra])
+    assert_one_line_error(r, "thermorc: error:", place=True, needle=needle)
+    assert snapshot(out) == before
