@@ -123,7 +123,7 @@ def _with_tiny_capacitances(net, eps_j_per_k):
 @given(random_networks())
 def test_reduction_is_the_vanishing_capacitance_limit(net):
     # A massless node is the limit C -> 0 of a node with capacitance (singular perturbation,
-    # Kokotovic, Khalil and O'Reilly 1986, ch. 1): the slow modes and the steady state of the
+    # Kokotovic, Khalil and O'Reilly 1986, ch. 1, from memory): the slow modes and the steady state of the
     # reduced network must be those of the full one with tiny capacitances.
     space = net.state_space()
     # Small against every capacitance, yet not so small that the twin's stiffness (fast rates
@@ -142,8 +142,9 @@ def test_reduction_is_the_vanishing_capacitance_limit(net):
 @settings(max_examples=40, deadline=None)
 @given(random_networks(), st.floats(-30.0, 30.0), st.floats(-30.0, 30.0), st.floats(0.0, 1e4))
 def test_steady_state_is_a_weighted_mean_of_boundaries_plus_heat(net, t_out, t_ground, q_w):
-    # Maximum principle of a resistive network: with no heat input every node lies between the
-    # boundary temperatures; heat input only raises temperatures (superposition).
+    # Maximum principle of a resistive network (the inverse of an irreducible M-matrix is
+    # positive; Varga, Matrix Iterative Analysis, ch. 3, from memory): with no heat input every
+    # node lies between the boundary temperatures; heat input only raises temperatures.
     space = net.state_space()
     u0 = np.array([t_out, t_ground, 0.0])
     x = np.linalg.solve(space.k_reduced_w_per_k, space.e_reduced @ u0)
