@@ -197,3 +197,11 @@ def test_ua_prior_combines_with_the_data_by_their_information():
     sd_post = post.std_errors["heat_loss_coefficient_w_per_k"] / post.heat_loss_coefficient_w_per_k
     assert sd_post == pytest.approx(sd_d / math.sqrt(2), rel=0.25)
     assert post.extras["estimator"]["ua_prior"]["ua_w_per_k"] == pytest.approx(prior_ua)
+
+
+def test_a_fit_past_its_time_limit_stops_with_a_clear_message(monkeypatch):
+    # No hang: the optimiser checks a wall-clock budget at every model evaluation.
+    monkeypatch.setattr(estimate, "TIME_LIMIT_S", -1.0)
+    log, _, _ = stochastic_log(seed=1, days=6)
+    with pytest.raises(InputError, match="did not finish within"):
+        estimate.calibrate(log, model="2R2C")

@@ -81,6 +81,8 @@ STATE_BOUNDS_C = (-50.0, 60.0)
 # dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0
 SCOUT_NFEV = 30
+# A fit that runs longer than this stops with a clear message instead of seeming to hang.
+TIME_LIMIT_S = 900.0
 # Log R and log C have similar sensitivities only after scaling: let the solver scale by the
 # Jacobian's columns (scipy.optimize.least_squares, x_scale="jac").
 X_SCALE = "jac"
@@ -503,6 +505,7 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
     """
     best = None
     tried = []
+    deadline = _time.perf_counter() + TIME_LIMIT_S
     starts = _start_values(model, data, previous)
     # With several starts each gets a short run; only the best is then run to convergence.
     scout_nfev = max_nfev if len(starts) == 1 else min(max_nfev, SCOUT_NFEV)
@@ -526,6 +529,11 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
         block_id, n_blocks = _blocks(data, observed, block)
 
         def residuals(theta):
+            if _time.perf_counter() > deadline:
+                raise InputError(
+                    f"the fit did not finish within {TIME_LIMIT_S:.0f} s (thermorc.estimate.TIME_LIMIT_S); "
+                    "try a longer model step (--step-min 15), a simpler model or a shorter log"
+                )
             try:
                 yhat, _ = _simulate_indoor(layout, theta, data)
             except NetworkError:
