@@ -580,7 +580,11 @@ def _ml_objective(layout: _Layout, data: CalibrationData):
     foh = np.zeros(4, dtype=bool)
     foh[0] = True
 
+    deadline = _time.perf_counter() + TIME_LIMIT_S
+
     def negloglike(vector):
+        if _time.perf_counter() > deadline:
+            raise InputError(f"the likelihood fit did not finish within {TIME_LIMIT_S:.0f} s; try output error")
         theta = np.concatenate([vector[:n_phys], layout.start_theta()[n_phys:]])
         sig = np.exp(vector[n_phys:n_phys + n_states])
         r_meas = math.exp(2 * vector[-1])
