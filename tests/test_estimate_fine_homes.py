@@ -24,7 +24,7 @@ from thermorc.errors import ThermorcWarning
 
 SITE = {"latitude": 45.0, "longitude": -90.0, "altitude_m": 300.0}  # synthetic weather's site
 
-# home: (time-constant tolerance, prediction RMSE bound [K]); the targets are 0.25 and 0.3.
+# home: (time-constant tolerance, prediction RMSE bound [K]); the targets are 0.25 and 0.3 K.
 CASES = {
     "light": (0.25, 0.6),
     "leaky": (0.25, 0.35),

@@ -1,6 +1,6 @@
 """Fleet speed goal: 1,000 invented homes, a month of 15-minute data each, --model auto, 2 cores.
 
-Goal (issue of the fleet command): at least 25 homes per second on 2 cores and a peak
+Goal of the fleet command: at least 25 homes per second on 2 cores and a peak
 memory (the runner and its workers together) under 2 GiB. The homes are the invented 2R2C
 homes of tests/test_fleet.py, written to one hive-partitioned Parquet dataset as fleets are
 usually stored. Run with `make bench`; THERMORC_BENCH_HOMES sets a smaller fleet.
