@@ -978,6 +978,10 @@ def calibrate(
     if not np.all(np.isfinite(sub_cov)):
         notes.append("the parameter covariance could not be computed (singular information matrix)")
     physical = layout.physical(theta)
+    for i, p in enumerate(layout.params[: layout.n_physical]):
+        # A value pinned at a bound is reported as the bound (a trust-region solver stops just inside it).
+        if not p.log and theta[i] - lower[i] < 1e-6 * span[i]:
+            physical[p.name] = p.lower
     net = layout.network(theta)
     derived, se_log = _delta_method(layout, theta, np.nan_to_num(cov)) if np.all(np.isfinite(sub_cov)) else (_derived(layout, theta), {})
     yhat, states = _simulate_indoor(layout, theta, data)
