@@ -166,3 +166,22 @@ def test_reduction_preserves_steady_state(net):
     eig = np.linalg.eigvals(space.a)
     assert np.all(np.abs(eig.imag) < 1e-9 * np.abs(eig.real).max())
     np.testing.assert_allclose(np.sort(-1 / eig.real)[::-1], net.time_constants_s(), rtol=1e-7)
+
+
+def test_extreme_stiffness_is_reported_as_precision_loss():
+    # eigh resolves eigenvalues to about eps times the largest (Golub & Van Loan, ch. 8): a
+    # network whose rates span 1e14 keeps about 2 digits in its slowest mode, and says so.
+    from thermorc.errors import PrecisionWarning
+
+    net = Network().add_node("indoor", 1e12).add_node("skin", 1e-2)
+    net.add_conductance("indoor", "skin", 10.0).add_conductance("skin", "outdoor_c", 10.0)
+    with pytest.warns(PrecisionWarning, match="orders of magnitude"):
+        taus = net.time_constants_s()
+    assert np.all(np.isfinite(taus))
+    # Ordinary homes stay silent (time constants minutes to weeks).
+    import warnings as _warnings
+
+    with _warnings.catch_warnings():
+        _warnings.simplefilter("error", PrecisionWarning)
+        Network.from_preset("2R2C", r_indoor_envelope_k_per_w=1e-3, r_envelope_outdoor_k_per_w=5e-3,
+                            c_indoor_j_per_k=1e5, c_envelope_j_per_k=1e9).time_constants_s()

@@ -25,6 +25,7 @@ __all__ = [
     "IdentifiabilityWarning",
     "ConvergenceWarning",
     "SafetyWarning",
+    "PrecisionWarning",
 ]
 
 
@@ -102,6 +103,10 @@ class IdentifiabilityWarning(ThermorcWarning):
 
 class ConvergenceWarning(ThermorcWarning):
     """The optimiser stopped without meeting its convergence test."""
+
+
+class PrecisionWarning(ThermorcWarning):
+    """A computation lost digits (a very stiff network, a near-singular matrix)."""
 
 
 class SafetyWarning(ThermorcWarning):

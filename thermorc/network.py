@@ -33,12 +33,13 @@ References
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
 
-from thermorc.errors import NetworkError
+from thermorc.errors import NetworkError, PrecisionWarning
 
 __all__ = [
     "Network",
@@ -48,6 +49,9 @@ __all__ = [
     "PRESETS",
     "preset_parameters",
 ]
+
+#: Ratio of fastest to slowest relaxation rate above which precision loss is reported.
+STIFFNESS_WARN = 1e12
 
 #: Default boundary and input channel names of the presets; they match the log columns.
 OUTDOOR = "outdoor_c"
@@ -158,6 +162,17 @@ def modes_of(space: StateSpace) -> Modes:
         raise NetworkError(
             "the network has a mode that does not decay (a node group with no path to a "
             "boundary, or conductances too small to resolve)"
+        )
+    stiffness = rates[-1] / rates[0]
+    if stiffness > STIFFNESS_WARN:
+        # A symmetric eigensolver resolves eigenvalues to about eps * largest; the slowest
+        # modes then keep only log10(1/(eps * stiffness)) digits (Golub & Van Loan, ch. 8).
+        digits = max(0.0, -math.log10(np.finfo(float).eps * stiffness))
+        warnings.warn(
+            f"the network's time constants span {math.log10(stiffness):.0f} orders of magnitude; its slowest "
+            f"modes keep only about {digits:.0f} significant digits (merge very fast nodes or make them massless)",
+            PrecisionWarning,
+            stacklevel=3,
         )
     w = v / root[:, None]
     w_inv = v.T * root[None, :]
