@@ -24,9 +24,6 @@ __all__ = ["PreparedLog", "prepare_log", "parse_site", "calibrate_files", "simul
 #: four vertical façades. [W m⁻²]
 SOLAR_COLUMN = "solar_vertical_w_m2"
 
-#: Relative standard uncertainty given to a construction's UA when it serves as a prior.
-CONSTRUCTION_UA_REL_SD = 0.2
-
 
 @dataclass
 class PreparedLog:
@@ -322,13 +319,13 @@ def calibrate_files(
     ua_prior = None
     if construction is not None:
         from thermorc.construction import construction_ua, read_construction
+        from thermorc.iso13790 import CONSTRUCTION_UA_REL_UNCERTAINTY
 
         # Check every input file before the fit, which can take minutes.
         built = read_construction(construction)
-        # The construction's UA is a prior with a 20 % relative standard uncertainty (our
-        # assumption, as in thermorc.iso13790.plausibility_details; measured whole-home heat
-        # loss often differs from the design value by that much or more).
-        ua_prior = (construction_ua(built)["ua_w_per_k"], CONSTRUCTION_UA_REL_SD)
+        # The construction's UA is a prior with the same uncertainty the plausibility check
+        # gives it: measured whole-home heat loss often differs from the design value that much.
+        ua_prior = (construction_ua(built)["ua_w_per_k"], CONSTRUCTION_UA_REL_UNCERTAINTY)
     prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site, step_s=step_s)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":

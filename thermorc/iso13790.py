@@ -50,6 +50,10 @@ from thermorc.construction import construction_ua, effective_areal_capacity
 from thermorc.errors import InputError
 from thermorc.network import Network
 
+#: Relative standard uncertainty given to a construction's UA (our assumption, not a
+#: published figure; used for plausibility and as the calibration prior's width).
+CONSTRUCTION_UA_REL_UNCERTAINTY = 0.2
+
 __all__ = [
     "H_IS_W_PER_M2K",
     "H_MS_W_PER_M2K",
@@ -383,7 +387,7 @@ def capacity_class(capacitance_j_per_k, floor_area_m2):
 
 
 def plausibility_details(calibrated_ua_w_per_k, calibrated_capacitance_j_per_k, ua_std, construction,
-                         construction_ua_rel_uncertainty=0.2):
+                         construction_ua_rel_uncertainty=CONSTRUCTION_UA_REL_UNCERTAINTY):
     r"""
     Compare a calibrated UA and capacitance with what the construction says.
 
@@ -483,7 +487,7 @@ def plausibility_details(calibrated_ua_w_per_k, calibrated_capacitance_j_per_k, 
 
 
 def plausibility(calibrated_ua_w_per_k, calibrated_capacitance_j_per_k, ua_std, construction,
-                 construction_ua_rel_uncertainty=0.2):
+                 construction_ua_rel_uncertainty=CONSTRUCTION_UA_REL_UNCERTAINTY):
     """
     Warnings where a calibration disagrees with the construction.
 

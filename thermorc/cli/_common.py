@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import enum
 import functools
 import sys
 import traceback
@@ -13,6 +14,13 @@ from rich.console import Console
 from thermorc.errors import InputError, ThermorcWarning
 
 STATE = {"debug": False}
+
+
+class IntervalLabel(str, enum.Enum):
+    """Whether a log's power values are means over the interval starting or ending at their stamp."""
+
+    start = "start"
+    end = "end"
 
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 out_console = Console(highlight=False, soft_wrap=True)

@@ -10,7 +10,7 @@ from typing import Annotated, Optional
 import typer
 
 from thermorc.cli._app import app
-from thermorc.cli._common import guarded, out_console
+from thermorc.cli._common import IntervalLabel, guarded, out_console
 from thermorc.write import _clean_for_json, write_json
 
 EPILOG = "Example: thermorc calibrate site_log.csv --weather site.epw --model auto --out RESULT.json"
@@ -26,11 +26,6 @@ class ModelChoice(str, enum.Enum):
 class GainsChoice(str, enum.Enum):
     constant = "constant"
     day_night = "day-night"
-
-
-class IntervalLabel(str, enum.Enum):
-    start = "start"
-    end = "end"
 
 
 InputFile = Annotated[Path, typer.Argument(help="Log file: CSV, Parquet or Excel.", exists=True, dir_okay=False, show_default=False)]

@@ -12,16 +12,11 @@ import typer
 from thermorc import quality
 from thermorc.align import align
 from thermorc.cli._app import app
-from thermorc.cli._common import guarded, out_console
+from thermorc.cli._common import IntervalLabel, guarded, out_console
 from thermorc.read import read_log
 from thermorc.write import _clean_for_json, write_json
 
 EPILOG = "Example: thermorc inspect site_log.csv --map logger.toml --tz America/New_York --json"
-
-
-class IntervalLabel(str, enum.Enum):
-    start = "start"
-    end = "end"
 
 
 class ModelOrder(str, enum.Enum):
