@@ -39,6 +39,7 @@ import math
 import time as _time
 import warnings
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
@@ -55,6 +56,7 @@ from thermorc.errors import (
 )
 from thermorc.network import PRESETS, Network, modes_of
 from thermorc.result import CalibrationResult
+from thermorc.separable import ResponseBasis
 from thermorc.simulate import hold_setpoint, run_modes
 
 __all__ = [
@@ -236,24 +238,27 @@ def energy_balance_start(data: CalibrationData):
     up heat stored in the mass over the day. With fewer than five days, or an unphysical
     answer, the ratio of mean heating to mean temperature difference is used.
     """
-    frame = pd.DataFrame(
-        {"dt": data.y - data.u[:, 0], "q": data.u[:, 1] + data.u[:, 3], "g": data.u[:, 2], "ti": data.y},
-        index=data.index,
-    )
-    inside = np.zeros(len(frame), dtype=bool)
+    inside = np.zeros(len(data.y), dtype=bool)
     for s in data.segments:
         inside[s] = True
-    frame = frame[inside]
+    ti = data.y[inside]
+    dt = ti - data.u[inside, 0]
+    q = data.u[inside, 1] + data.u[inside, 3]
+    g = data.u[inside, 2]
     per_day = int(round(86400 / data.step_s))
-    local_day = frame.index.floor("D")
-    groups = frame.groupby(local_day)
+    _, day, counts = np.unique(data.index[inside].floor("D").asi8, return_inverse=True, return_counts=True)
+    observed = np.isfinite(ti)
+    n_obs = np.bincount(day, weights=observed, minlength=counts.size)
     rows = []
-    for _, day in groups:
-        if len(day) < 0.9 * per_day or day["ti"].isna().mean() > 0.1:
+    bounds = np.flatnonzero(np.diff(np.append(-1, day))) if day.size else np.array([], dtype=int)
+    for d, first in enumerate(bounds):
+        if counts[d] < 0.9 * per_day or n_obs[d] < 0.9 * counts[d]:
             continue
-        rows.append([day["dt"].mean(), day["g"].mean(), day["ti"].dropna().iloc[-1] - day["ti"].dropna().iloc[0], day["q"].mean()])
+        sl = slice(first, first + counts[d])
+        t_day = ti[sl][observed[sl]]
+        rows.append([np.nanmean(dt[sl]), g[sl].mean(), t_day[-1] - t_day[0], q[sl].mean()])
     rows = np.array(rows)
-    ratio_ua = float(np.nansum(frame["q"]) / max(np.nansum(frame["dt"]), 1e-9))
+    ratio_ua = float(np.nansum(q) / max(np.nansum(dt), 1e-9))
     fallback = {"ua_w_per_k": max(ratio_ua, 1.0), "aperture_m2": 1.0, "gains_w": 0.0, "n_days": len(rows)}
     if len(rows) < 5:
         return fallback
@@ -498,68 +503,163 @@ def _blocks(data, observed, block):
     return block_id, n_blocks
 
 
+def _ua_of(model, rc):
+    """Steady-state heat loss coefficient of a preset from its R and C. [W K⁻¹]"""
+    if model == "1R1C":
+        return 1.0 / rc[0]
+    series = 1.0 / (rc[0] + rc[1])
+    return series + (1.0 / rc[2] if model == "3R2C" else 0.0)
+
+
 def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, prior=None):
     """Least squares on the open-loop indoor temperature; returns the best of a few starts.
 
-    ``prior`` is ``(log_ua, weight)``: one extra residual ``weight * (log UA(theta) - log_ua)``.
+    The linear parameters (apertures, gains, hidden initial states) are solved exactly for
+    each trial R and C (:mod:`thermorc.separable`), so the optimiser searches only the
+    logarithms of R and C. ``prior`` is ``(log_ua, weight)``: one extra residual
+    ``weight * (log UA - log_ua)``.
     """
-    best = None
-    tried = []
     deadline = _time.perf_counter() + TIME_LIMIT_S
     starts = _start_values(model, data, previous)
-    # With several starts each gets a short run; only the best is then run to convergence.
-    scout_nfev = max_nfev if len(starts) == 1 else min(max_nfev, SCOUT_NFEV)
+    layout = _Layout(model, data, gains, starts[0])
+    rc_names = list(PRESETS[model].parameters)
+    n_rc = len(rc_names)
+    lower, upper = layout.bounds()
+    rc_lower, rc_upper = lower[:n_rc], upper[:n_rc]
+    observed = np.zeros(len(data.y), dtype=bool)
+    for s in data.segments:
+        observed[s] = np.isfinite(data.y[s])
+    block_id, n_blocks = _blocks(data, observed, block)
+    basis = ResponseBasis(model, data, layout.day if gains == "day_night" else None, block_id, n_blocks)
+    n_out = n_blocks + (1 if prior is not None else 0)
+    evaluations = [0]
 
-    def solve(residuals, theta0, lower, upper, nfev):
+    def prior_residual(rc):
+        return None if prior is None else prior[1] * (math.log(_ua_of(model, rc)) - prior[0])
+
+    def projected(theta_rc):
+        if _time.perf_counter() > deadline:
+            raise InputError(
+                f"the fit did not finish within {TIME_LIMIT_S:.0f} s (thermorc.estimate.TIME_LIMIT_S); "
+                "try a longer model step (--step-min 15), a simpler model or a shorter log"
+            )
+        evaluations[0] += 1
+        rc = np.exp(theta_rc)
+        try:
+            fixed, linear = basis.columns(rc)
+        except NetworkError:
+            return np.full(n_out, 1e3)
+        return basis.solve_linear(fixed, linear, prior_residual(rc))[1]
+
+    def solve(theta0, nfev):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             return scipy.optimize.least_squares(
-                residuals, theta0, bounds=(lower, upper), method="trf", x_scale=X_SCALE, max_nfev=nfev, diff_step=1e-6,
-                ftol=1e-10, xtol=1e-10, gtol=1e-8,
+                projected, theta0, bounds=(rc_lower, rc_upper), method="trf", x_scale=X_SCALE, max_nfev=nfev,
+                diff_step=1e-6, ftol=1e-10, xtol=1e-10, gtol=1e-8,
             )
 
+    # With several starts each gets a short run; only the best is then run to convergence.
+    scout_nfev = max_nfev if len(starts) == 1 else min(max_nfev, SCOUT_NFEV)
+    best, tried = None, []
     for start in starts:
-        layout = _Layout(model, data, gains, start)
-        lower, upper = layout.bounds()
-        theta0 = np.clip(layout.start_theta(), lower + 1e-9, upper - 1e-9)
-        observed = np.zeros(len(data.y), dtype=bool)
-        for s in data.segments:
-            observed[s] = np.isfinite(data.y[s])
-
-        block_id, n_blocks = _blocks(data, observed, block)
-
-        def residuals(theta):
-            if _time.perf_counter() > deadline:
-                raise InputError(
-                    f"the fit did not finish within {TIME_LIMIT_S:.0f} s (thermorc.estimate.TIME_LIMIT_S); "
-                    "try a longer model step (--step-min 15), a simpler model or a shorter log"
-                )
-            try:
-                yhat, _ = _simulate_indoor(layout, theta, data)
-            except NetworkError:
-                return np.full(n_blocks, 1e3)
-            used = block_id >= 0
-            r = data.y[used] - yhat[used]
-            sums = np.bincount(block_id[used], weights=r, minlength=n_blocks)
-            counts = np.bincount(block_id[used], minlength=n_blocks)
-            out = np.where(np.isfinite(sums / counts), sums / counts, 1e3)
-            if prior is not None:
-                log_ua = math.log(layout.network(theta).heat_loss_coefficient_w_per_k()["total"])
-                out = np.append(out, prior[1] * (log_ua - prior[0]))
-            return out
-
-        sol = solve(residuals, theta0, lower, upper, scout_nfev)
+        theta0 = np.array([math.log(start[name]) for name in rc_names])
+        theta0 = np.clip(theta0, rc_lower + 1e-9, rc_upper - 1e-9)
+        sol = solve(theta0, scout_nfev)
         tried.append({"cost": float(sol.cost), "status": int(sol.status), "nfev": int(sol.nfev)})
-        if best is None or sol.cost < best[1].cost:
-            best = (layout, sol, observed, residuals)
-    layout, sol, observed, residuals = best
+        if best is None or sol.cost < best.cost:
+            best = sol
+    sol = best
     if sol.status == 0 and scout_nfev < max_nfev:  # the scouting run hit its limit: go on
-        lower, upper = layout.bounds()
-        more = solve(residuals, np.clip(sol.x, lower, upper), lower, upper, max_nfev)
+        more = solve(np.clip(sol.x, rc_lower, rc_upper), max_nfev)
         tried.append({"cost": float(more.cost), "status": int(more.status), "nfev": int(more.nfev), "continued": True})
         more.nfev += sol.nfev
         sol = more
-    return layout, sol, observed, tried
+    theta, fun, jac = _full_solution(layout, basis, sol.x, prior_residual, prior)
+    full = SimpleNamespace(
+        x=theta, fun=fun, jac=jac, cost=0.5 * float(fun @ fun), status=int(sol.status), success=bool(sol.success),
+        message=str(sol.message), nfev=evaluations[0],
+    )
+    return layout, full, observed, tried
+
+
+def _full_solution(layout, basis, theta_rc, prior_residual, prior):
+    """All fitted parameters in the layout's vector, with residuals and Jacobian there.
+
+    The Jacobian of the linear parameters is exact (their response columns); the R and C
+    columns come from central differences with the linear parameters held.
+    """
+    model = layout.model
+    n_rc = theta_rc.size
+    rc = np.exp(theta_rc)
+    fixed, linear = basis.columns(rc)
+    coef, _ = basis.solve_linear(fixed, linear)
+    lower, upper = layout.bounds()
+    theta = np.empty(len(layout.params))
+    theta[:n_rc] = theta_rc
+    pos = n_rc
+    n_solar = basis.n_solar
+    if basis.has_solar:
+        onto = coef[:n_solar]
+        aperture = float(onto.sum())
+        share = float(onto[1] / aperture) if n_solar == 2 and aperture > 0 else 0.0
+        theta[pos] = math.log(max(aperture, APERTURE_BOUNDS_M2[0]))
+        pos += 1
+        if n_solar == 2:
+            theta[pos] = min(max(share, 0.0), 1.0)
+            pos += 1
+    n_tail = len(theta) - pos
+    theta[pos:] = coef[n_solar:n_solar + n_tail]
+    theta = np.clip(theta, lower, upper)
+
+    def model_blocks(th_rc, rows_coef):
+        f, lin = basis.columns(np.exp(th_rc))
+        return f + lin @ rows_coef
+
+    # Linear coefficients as the layout's values imply them (the clipping above included).
+    values = layout.values(theta)
+    lin_coef = np.empty(basis.n_linear)
+    k = 0
+    if basis.has_solar:
+        a_total = values["solar_aperture_m2"]
+        sh = values.get("solar_to_envelope_share", 0.0)
+        lin_coef[0] = a_total * (1 - sh)
+        if n_solar == 2:
+            lin_coef[1] = a_total * sh
+        k = n_solar
+    lin_coef[k:] = theta[pos:]
+    residual = basis.y_blocks - (fixed + linear @ lin_coef)
+    jac = np.zeros((residual.size, len(theta)))
+    for i in range(n_rc):
+        h = 1e-5 * max(1.0, abs(theta_rc[i]))
+        up, down = theta_rc.copy(), theta_rc.copy()
+        up[i] += h
+        down[i] -= h
+        try:
+            jac[:, i] = -(model_blocks(up, lin_coef) - model_blocks(down, lin_coef)) / (2 * h)
+        except NetworkError:
+            jac[:, i] = 0.0
+    col = n_rc
+    if basis.has_solar:
+        if n_solar == 2:
+            jac[:, col] = -a_total * ((1 - sh) * linear[:, 0] + sh * linear[:, 1])
+            jac[:, col + 1] = -a_total * (linear[:, 1] - linear[:, 0])
+            col += 2
+        else:
+            jac[:, col] = -a_total * linear[:, 0]
+            col += 1
+    jac[:, col:] = -linear[:, n_solar:]
+    if prior is not None:
+        residual = np.append(residual, prior_residual(rc))
+        row = np.zeros(len(theta))
+        for i in range(n_rc):
+            h = 1e-6
+            up, down = rc.copy(), rc.copy()
+            up[i] *= math.exp(h)
+            down[i] *= math.exp(-h)
+            row[i] = prior[1] * (math.log(_ua_of(model, up)) - math.log(_ua_of(model, down))) / (2 * h)
+        jac = np.vstack([jac, row])
+    return theta, residual, jac
 
 
 # Noise parameters of the prediction-error estimator: continuous-time process-noise standard

@@ -1,0 +1,123 @@
+"""The separable form of the fit: response columns, the bounded linear solve, the optimum.
+
+References outside thermorc: scipy.signal.lsim for the responses, scipy.optimize.lsq_linear
+(bounded-variable least squares) for the linear solve, and a plain scipy.optimize.least_squares
+over all parameters at once for the optimum (the separable problem has the same minimiser:
+G. H. Golub and V. Pereyra, SIAM J. Numer. Anal. 10(2), 1973).
+"""
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+import scipy.optimize
+import scipy.signal
+
+from test_estimate import stochastic_log
+from thermorc import estimate
+from thermorc.network import PRESETS, Network
+from thermorc.separable import ResponseBasis, preset_matrices
+
+RC = {
+    "1R1C": [5e-3, 3e7],
+    "2R2C": [1e-3, 4e-3, 4e6, 6e7],
+    "3R2C": [1.2e-3, 5e-3, 2e-2, 4e6, 6e7],
+}
+
+
+@pytest.fixture(scope="module")
+def data():
+    log, _, _ = stochastic_log(seed=3, days=8, step_s=900.0)
+    d = estimate.calibration_data(log)
+    # Two segments, so the per-segment initial states are exercised.
+    d.segments = [slice(0, 400), slice(420, len(d.y))]
+    return d
+
+
+@pytest.mark.parametrize("model", list(RC))
+def test_preset_matrices_match_network(model):
+    params = dict(zip(PRESETS[model].parameters, RC[model]))
+    space = Network.from_preset(model, params).state_space()
+    k, g_out, caps = preset_matrices(model, RC[model])
+    np.testing.assert_allclose(k, space.k_reduced_w_per_k, rtol=1e-12)
+    np.testing.assert_allclose(g_out, space.e_reduced[:, 0], rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(caps, space.capacitances_j_per_k, rtol=1e-12)
+
+
+@pytest.mark.parametrize("model", list(RC))
+@pytest.mark.parametrize("gains", ["constant", "day_night"])
+def test_columns_rebuild_the_lsim_response(data, model, gains):
+    # The response to all inputs at once, from scipy.signal.lsim with linear interpolation of
+    # the outdoor temperature and held powers (the two are run separately and added, since
+    # lsim takes one interpolation for all inputs).
+    rng = np.random.default_rng(0)
+    n_solar = 1 if model == "1R1C" else 2
+    apertures = rng.uniform(1, 5, n_solar)
+    levels = rng.uniform(100, 400, 2 if gains == "day_night" else 1)
+    hidden = rng.uniform(10, 18, 2)
+    day = np.isin(data.index.hour, range(7, 23))
+    basis = ResponseBasis(model, data, day if gains == "day_night" else None, np.full(len(data.y), -1), 0)
+    rows = basis.rows(RC[model])
+    coef = np.concatenate([apertures, levels, hidden[: basis.n_hidden]])
+    modelled = rows[:, 0] + rows[:, 1:] @ coef
+    k, g_out, caps = preset_matrices(model, RC[model])
+    a = -k / caps[:, None]
+    n = caps.size
+    for seg_no, seg in enumerate(data.segments):
+        u = data.u[seg]
+        t = np.arange(seg.stop - seg.start) * data.step_s
+        gain_w = np.where(day[seg], levels[0], levels[-1])
+        power = np.zeros((len(t), n))
+        power[:, 0] = u[:, 1] + u[:, 3] + gain_w + apertures[0] * u[:, 2]
+        if n_solar == 2:
+            power[:, 1] = apertures[1] * u[:, 2]
+        x0 = np.array([data.y[seg][0]] + ([hidden[seg_no]] if n == 2 else []))
+        held = scipy.signal.lsim((a, np.diag(1 / caps), np.eye(n)[:1], np.zeros((1, n))), power, t, X0=x0, interp=False)[1]
+        ramp = scipy.signal.lsim((a, (g_out / caps)[:, None], np.eye(n)[:1], np.zeros((1, 1))), u[:, 0], t, interp=True)[1]
+        np.testing.assert_allclose(modelled[seg], held + ramp, atol=1e-7)
+
+
+def test_bounded_linear_solve_matches_lsq_linear():
+    # Random problems where the unbounded solution breaks a bound: the exact bounded answer
+    # is that of scipy.optimize.lsq_linear (bounded-variable least squares).
+    rng = np.random.default_rng(4)
+    basis = ResponseBasis.__new__(ResponseBasis)
+    for trial in range(30):
+        basis.n_solar, basis.n_gains, basis.n_hidden = 2, 1, 2
+        basis.n_linear = 5
+        linear = rng.normal(size=(60, 5))
+        basis.y_blocks = linear @ np.array([-1.0, 2.0, -0.5, 1.0, 3.0]) + rng.normal(0, 0.5, 60)
+        coef, resid = basis.solve_linear(np.zeros(60), linear)
+        ref = scipy.optimize.lsq_linear(linear, basis.y_blocks, bounds=([0, 0, 0, -np.inf, -np.inf], np.inf), method="bvls")
+        np.testing.assert_allclose(coef, ref.x, atol=1e-8)
+        np.testing.assert_allclose(resid, basis.y_blocks - linear @ coef)
+
+
+def test_separable_fit_reaches_the_full_least_squares_optimum():
+    # A plain least_squares over every parameter (R, C, aperture, share, gains, initial
+    # state) from the separable optimum must not find a lower cost: both solve one problem.
+    log, _, _ = stochastic_log(seed=8, days=12, step_s=900.0)
+    data = estimate.calibration_data(log)
+    layout, sol, observed, _ = estimate._fit_output_error("2R2C", data, "constant", block=4)
+    block_id, n_blocks = estimate._blocks(data, observed, 4)
+    counts = np.bincount(block_id[block_id >= 0], minlength=n_blocks)
+
+    def full(theta):
+        yhat, _ = estimate._simulate_indoor(layout, theta, data)
+        used = block_id >= 0
+        return np.bincount(block_id[used], weights=data.y[used] - yhat[used], minlength=n_blocks) / counts
+
+    np.testing.assert_allclose(full(sol.x), sol.fun, atol=1e-9)
+    lower, upper = layout.bounds()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ref = scipy.optimize.least_squares(full, np.clip(sol.x, lower + 1e-9, upper - 1e-9), bounds=(lower, upper),
+                                           x_scale="jac", max_nfev=200)
+    assert ref.cost >= sol.cost * (1 - 1e-4)
+    # And the Jacobian of the separable solution is the full problem's (finite differences).
+    ref_jac = scipy.optimize.approx_fprime(sol.x, full, 1e-6)
+    scale = np.max(np.abs(ref_jac), axis=0)
+    assert np.all(np.abs(sol.jac - ref_jac) <= 1e-3 * scale + 1e-9)
+    ua = estimate._ua_of("2R2C", [math.exp(t) for t in sol.x[:4]])
+    assert ua == pytest.approx(layout.network(sol.x).heat_loss_coefficient_w_per_k()["total"], rel=1e-12)

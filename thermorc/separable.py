@@ -1,0 +1,289 @@
+r"""
+Separable least squares for the presets: the fit's linear parameters solved exactly.
+
+The indoor temperature a preset predicts is linear in the solar apertures, the unlogged gains
+and the unmeasured initial node temperatures; only the resistances and capacitances enter
+non-linearly. For given R and C, :class:`ResponseBasis` computes the response of the indoor
+node to each linear parameter (one column each) and to the measured inputs (the fixed part),
+all in one modal pass; the linear parameters then follow from a small bounded linear least
+squares. The optimiser searches the R and C alone on the projected residual [1]_, which
+needs far fewer model runs than searching all parameters at once and cannot stall in a poor
+gains or initial-state value.
+
+References
+----------
+.. [1] G. H. Golub and V. Pereyra, "The differentiation of pseudo-inverses and nonlinear
+   least squares problems whose variables separate," SIAM J. Numer. Anal., vol. 10, no. 2,
+   pp. 413-432, 1973, doi:10.1137/0710036.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+
+import numpy as np
+import scipy.sparse
+
+from thermorc.errors import NetworkError
+from thermorc.simulate import phi_functions
+
+__all__ = ["ResponseBasis", "preset_matrices"]
+
+
+def preset_matrices(model, rc):
+    """
+    Conductance matrix, outdoor coupling and heat capacities of a preset.
+
+    Parameters
+    ----------
+    model : {'1R1C', '2R2C', '3R2C'}
+        Preset name.
+    rc : sequence of float
+        Its resistances [K W⁻¹] and capacitances [J K⁻¹] in the order of
+        ``thermorc.network.PRESETS[model].parameters``.
+
+    Returns
+    -------
+    k_w_per_k : numpy.ndarray, shape (n, n)
+        Symmetric conductance matrix of the capacitive nodes (indoor first). [W K⁻¹]
+    g_outdoor_w_per_k : numpy.ndarray, shape (n,)
+        Conductance of each node to outdoor. [W K⁻¹]
+    c_j_per_k : numpy.ndarray, shape (n,)
+        Heat capacities. [J K⁻¹]
+
+    Notes
+    -----
+    The same matrices as :meth:`thermorc.network.Network.state_space` builds for the preset
+    (tests/test_separable.py checks it), written out because the fit needs them thousands of
+    times.
+    """
+    if model == "1R1C":
+        r, c = rc
+        g = 1.0 / r
+        return np.array([[g]]), np.array([g]), np.array([c])
+    if model == "2R2C":
+        r_ie, r_eo, c_i, c_e = rc
+        g_io = 0.0
+    elif model == "3R2C":
+        r_ie, r_eo, r_io, c_i, c_e = rc
+        g_io = 1.0 / r_io
+    else:
+        raise NetworkError(f"no separable form for model '{model}'")
+    g_ie, g_eo = 1.0 / r_ie, 1.0 / r_eo
+    k = np.array([[g_ie + g_io, -g_ie], [-g_ie, g_ie + g_eo]])
+    return k, np.array([g_io, g_eo]), np.array([c_i, c_e])
+
+
+class ResponseBasis:
+    """
+    Indoor-node responses of a preset to its measured inputs and to each linear parameter.
+
+    Parameters
+    ----------
+    model : {'1R1C', '2R2C', '3R2C'}
+        Preset name.
+    data : thermorc.estimate.CalibrationData
+        Inputs ``u`` (outdoor, heating, irradiance, logged gains), measured ``y`` and segments.
+    day : numpy.ndarray of bool or None
+        Rows of the daytime gains level; ``None`` for one constant level.
+    block_id : numpy.ndarray of int
+        Residual block of each row, ``-1`` for rows not compared.
+    n_blocks : int
+        Number of blocks.
+
+    Notes
+    -----
+    Linear parameters, in order: aperture onto the indoor node and onto the envelope node
+    [m²] (when irradiance is given; the envelope one for two-node presets only), the gains
+    level(s) [W], then the hidden node's initial temperature per segment [°C]. The measured
+    indoor temperature starts the indoor node; the outdoor temperature is held linearly
+    between samples, the powers as interval means, as in :func:`thermorc.simulate.run_modes`.
+    """
+
+    def __init__(self, model, data, day, block_id, n_blocks):
+        self.model = model
+        self.n_states = 1 if model == "1R1C" else 2
+        self.data = data
+        self.step_s = float(data.step_s)
+        self.has_solar = bool(data.has_solar)
+        self.n_solar = (1 if self.n_states == 1 else 2) if self.has_solar else 0
+        self.day = None if day is None else np.asarray(day, dtype=float)
+        self.n_gains = 1 if day is None else 2
+        self.segments = list(data.segments)
+        self.n_hidden = (self.n_states - 1) * len(self.segments)
+        self.n_linear = self.n_solar + self.n_gains + self.n_hidden
+        rows = np.flatnonzero(block_id >= 0)
+        counts = np.bincount(block_id[rows], minlength=n_blocks).astype(float)
+        # Mean over each block as one sparse product: rows x columns -> blocks x columns.
+        self.averager = scipy.sparse.csr_matrix(
+            (1.0 / counts[block_id[rows]], (block_id[rows], rows)), shape=(n_blocks, len(data.y))
+        )
+        self.y_blocks = self.averager @ np.where(np.isfinite(data.y), data.y, 0.0)
+        u = data.u
+        self._seg_inputs = []
+        for seg in self.segments:
+            y = data.y[seg]
+            outdoor = u[seg, 0]
+            power = u[seg, 1] + u[seg, 3]  # heating and logged gains both enter the indoor air
+            seqs = [power[:-1], u[seg, 2][:-1]] if self.has_solar else [power[:-1]]
+            if self.day is None:
+                seqs.append(np.ones(len(outdoor) - 1))
+            else:
+                d = self.day[seg][:-1]
+                seqs += [d, 1.0 - d]
+            self._seg_inputs.append(
+                (float(y[np.isfinite(y)][0]), outdoor[:-1], np.diff(outdoor), np.array(seqs), len(outdoor))
+            )
+
+    def columns(self, rc):
+        """
+        Block means of the fixed response and of each linear parameter's response.
+
+        Parameters
+        ----------
+        rc : sequence of float
+            Resistances [K W⁻¹] and capacitances [J K⁻¹] (preset order).
+
+        Returns
+        -------
+        fixed : numpy.ndarray, shape (n_blocks,)
+            Indoor temperature with every linear parameter zero. [°C]
+        linear : numpy.ndarray, shape (n_blocks, n_linear)
+            Change of the indoor temperature per unit of each linear parameter.
+        """
+        rows = self.rows(rc)
+        both = self.averager @ rows
+        return both[:, 0], both[:, 1:]
+
+    def rows(self, rc):
+        """The responses of :meth:`columns` at every row (zero outside the segments)."""
+        k, g_out, caps = preset_matrices(self.model, rc)
+        root = np.sqrt(caps)
+        s = k / np.outer(root, root)
+        rates, v = np.linalg.eigh(s)
+        if not (np.all(np.isfinite(rates)) and rates[0] > 0):
+            raise NetworkError("the network has a mode that does not decay")
+        w0 = v[0] / root[0]  # indoor row of the mode shapes: x_indoor = w0 @ z
+        w_inv = v.T * root[None, :]  # z = w_inv x
+        beta_out = w_inv @ (g_out / caps)
+        beta_node = w_inv / caps[None, :]  # modal gain of 1 W into each node
+        dt = self.step_s
+        x = rates * dt
+        a = np.exp(-x)
+        phi1, phi2, _ = phi_functions(x)
+        # Output weight of each mode for each column: solar onto each node, gains, hidden start.
+        weights = [w0 * beta_node[:, node] for node in range(self.n_solar)]
+        weights += [w0 * beta_node[:, 0]] * self.n_gains
+        col_seq = [0] * self.n_solar + [(1 if self.has_solar else 0) + j for j in range(self.n_gains)]
+        if self.n_states > 1:
+            weights.append(w0)  # the hidden state starts at w_inv[:, 1] itself
+            col_seq.append(-1)
+        col_w = np.array(weights)
+        col_seq = np.array(col_seq, dtype=np.int64)
+        out = np.zeros((len(self.data.y), 1 + self.n_linear))
+        local = np.empty(0)
+        fixed_in = (dt * phi1 * beta_out, dt * phi2 * beta_out, dt * phi1 * beta_node[:, 0], dt * phi1)
+        for k_seg, (seg, (y0, t_out, dt_out, seqs, length)) in enumerate(zip(self.segments, self._seg_inputs)):
+            if local.shape != (length, 1 + col_seq.size):
+                local = np.empty((length, 1 + col_seq.size))
+            _basis_kernel(a, *fixed_in, w_inv[:, 0] * y0, w0, t_out, dt_out, seqs, col_seq, col_w,
+                          w_inv[:, -1].copy(), local)
+            n_lead = 1 + self.n_solar + self.n_gains
+            out[seg, :n_lead] = local[:, :n_lead]
+            if self.n_states > 1:
+                out[seg, n_lead + k_seg] = local[:, -1]
+        return out
+
+    def solve_linear(self, fixed, linear, extra=None):
+        """
+        Linear parameters by least squares, apertures and gains kept non-negative.
+
+        Parameters
+        ----------
+        fixed, linear : numpy.ndarray
+            From :meth:`columns`.
+        extra : numpy.ndarray, optional
+            Residuals that do not depend on the linear parameters (a prior), appended.
+
+        Returns
+        -------
+        coef : numpy.ndarray, shape (n_linear,)
+        residuals : numpy.ndarray
+            Block residuals ``y - fixed - linear @ coef`` (then ``extra``).
+
+        Notes
+        -----
+        At most three coefficients carry a bound, so the bounded problem is solved exactly by
+        trying each set of bounds held active and keeping the best feasible solution (a
+        convex quadratic's minimum is the unconstrained minimum on its own active set).
+        """
+        target = self.y_blocks - fixed
+        n_bounded = self.n_solar + self.n_gains
+        coef = _lstsq(linear, target)
+        if np.any(coef[:n_bounded] < 0):
+            best, best_rss = None, math.inf
+            for held in itertools.product((False, True), repeat=n_bounded):
+                if not any(held):
+                    continue
+                keep = np.ones(self.n_linear, dtype=bool)
+                keep[:n_bounded] = ~np.array(held)
+                trial = np.zeros(self.n_linear)
+                trial[keep] = _lstsq(linear[:, keep], target)
+                if np.any(trial[:n_bounded] < 0):
+                    continue
+                rss = float(np.sum((target - linear @ trial) ** 2))
+                if rss < best_rss:
+                    best, best_rss = trial, rss
+            coef = best  # holding every bound gives a feasible point, so best is set
+        resid = target - linear @ coef
+        if extra is not None:
+            resid = np.append(resid, extra)
+        return coef, resid
+
+
+def _basis_loop(a, c_out0, c_out1, c_power, c_unit, z_fixed0, w_fixed, t_out, d_out, seqs, col_seq, col_w, z_hidden0, out):
+    """One pass over a segment: every modal recursion, and the indoor node's columns."""
+    m = a.size
+    n_rows = out.shape[0]
+    n_unit = seqs.shape[0] - 1
+    z_fixed = z_fixed0.copy()
+    z_unit = np.zeros((m, max(n_unit, 1)))
+    z_hidden = z_hidden0.copy()
+    for k in range(n_rows):
+        acc = 0.0
+        for j in range(m):
+            acc += w_fixed[j] * z_fixed[j]
+        out[k, 0] = acc
+        for c in range(col_seq.size):
+            s = col_seq[c]
+            acc = 0.0
+            if s >= 0:
+                for j in range(m):
+                    acc += col_w[c, j] * z_unit[j, s]
+            else:
+                for j in range(m):
+                    acc += col_w[c, j] * z_hidden[j]
+            out[k, 1 + c] = acc
+        if k == n_rows - 1:
+            break
+        for j in range(m):
+            z_fixed[j] = a[j] * z_fixed[j] + c_out0[j] * t_out[k] + c_out1[j] * d_out[k] + c_power[j] * seqs[0, k]
+            for s in range(n_unit):
+                z_unit[j, s] = a[j] * z_unit[j, s] + c_unit[j] * seqs[1 + s, k]
+            z_hidden[j] = a[j] * z_hidden[j]
+
+
+try:  # numba compiles the loop; the plain Python loop is the same arithmetic, only slower.
+    import numba
+
+    _basis_kernel = numba.njit(cache=True)(_basis_loop)
+except ImportError:  # pragma: no cover - numba is a declared dependency
+    _basis_kernel = _basis_loop
+
+
+def _lstsq(matrix, target):
+    """Least-squares solution, minimum norm where the columns are dependent."""
+    if matrix.shape[1] == 0:
+        return np.zeros(0)
+    return np.linalg.lstsq(matrix, target, rcond=None)[0]
