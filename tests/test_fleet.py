@@ -7,8 +7,14 @@ UA = 1 / (R_ie + R_eo) (the steady state of resistances in series; any heat-tran
 textbook, e.g. Incropera et al., Fundamentals of Heat and Mass Transfer, 7th ed., sec. 3.1).
 """
 
+import hashlib
+import json
 import math
 import os
+import shutil
+import socket
+import subprocess
+import sys
 import warnings
 
 import numpy as np
@@ -24,7 +30,9 @@ from thermorc.errors import InputError
 from thermorc.fleet import (
     RESULT_COLUMNS,
     calibrate_home,
+    input_fingerprint,
     journal_path,
+    lock_path,
     read_manifest,
     run_fleet,
     summary_path,
@@ -245,6 +253,7 @@ def test_resume_skips_homes_already_done(fleet_dir, tmp_path):
     assert third.n_run == 1 and third.n_skipped == 4
     with pytest.raises(InputError, match="was made with --model 2R2C"):
         run_fleet(full, out, workers=1, model="1R1C")
+    assert not os.path.exists(lock_path(out))  # released on the error path too
 
 
 def test_interruption_keeps_finished_batches_and_the_old_output(fleet_dir, tmp_path):
@@ -261,12 +270,165 @@ def test_interruption_keeps_finished_batches_and_the_old_output(fleet_dir, tmp_p
         run_fleet(root / "homes.csv", out, workers=1, model="2R2C", batch_size=2, on_row=stop_after_first_batch)
     assert not out.exists()
     assert not [f for f in os.listdir(tmp_path) if f.startswith(".tmp-")]  # no half-written file left
+    assert not os.path.exists(lock_path(out))  # released on an interruption
     parts = sorted(os.listdir(journal_path(out)))
     assert len(parts) == 1 and pq.read_table(os.path.join(journal_path(out), parts[0])).num_rows == 2
     run = run_fleet(root / "homes.csv", out, workers=2, model="2R2C", batch_size=2)
     assert run.n_skipped == 2 and run.n_run == 3
     assert not os.path.exists(journal_path(out))
     assert sorted(pd.read_parquet(out)["home_id"]) == ["bad", "h1", "h2", "h3", "h4"]
+
+
+def _own_fleet(fleet_dir, tmp_path, area_h1=120):
+    """Copies of h1, h2 (CSV logs) and h4 (hive dataset) that a test may change, and their manifest."""
+    root, _ = fleet_dir
+    (tmp_path / "logs").mkdir(parents=True)
+    for name in ("h1", "h2"):
+        shutil.copy(root / "logs" / f"{name}.csv", tmp_path / "logs" / f"{name}.csv")
+    shutil.copytree(root / "dataset", tmp_path / "dataset")
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(
+        "id,log,partition,site,floor_area_m2\n"
+        f"h1,logs/h1.csv,,\"{SITE}\",{area_h1}\n"
+        f"h2,logs/h2.csv,,\"{SITE}\",95.5\n"
+        f"h4,dataset,home_id=h4,\"{SITE}\",150\n"
+    )
+    return manifest
+
+
+def _nudge_csv_log(path, line=100):
+    """Change one indoor temperature by 0.1 K on one line (the file stays a valid log)."""
+    lines = path.read_text().splitlines()
+    cells = lines[line - 1].split(",")
+    cells[1] = f"{float(cells[1]) + 0.1:.1f}"
+    lines[line - 1] = ",".join(cells)
+    path.write_text("\n".join(lines) + "\n")
+
+
+def test_resume_recalculates_exactly_the_homes_whose_log_changed(fleet_dir, tmp_path):
+    manifest = _own_fleet(fleet_dir, tmp_path)
+    out = tmp_path / "RESULTS.parquet"
+    first = run_fleet(manifest, out, workers=1, model="2R2C")
+    assert (first.n_new, first.n_stale, first.n_skipped) == (3, 0, 0)
+    before = pd.read_parquet(out).set_index("home_id")
+    # The stored fingerprint is a SHA-256 (FIPS 180-4): 64 hex digits, one per home.
+    assert before["inputs_sha256"].str.fullmatch("[0-9a-f]{64}").all() and before["inputs_sha256"].nunique() == 3
+
+    # Same bytes, new modification time: a content hash sees no change.
+    os.utime(tmp_path / "logs" / "h1.csv", ns=(1, 1))
+    _nudge_csv_log(tmp_path / "logs" / "h2.csv")
+    seen = []
+    second = run_fleet(manifest, out, workers=1, model="2R2C", on_start=lambda n, counts: seen.append((n, counts)))
+    assert seen == [(1, {"kept": 2, "stale": 1, "retried": 0, "new": 0})]
+    assert (second.n_skipped, second.n_stale, second.n_new, second.n_run) == (2, 1, 0, 1)
+    after = pd.read_parquet(out).set_index("home_id")
+    assert sorted(after.index) == ["h1", "h2", "h4"]  # one row per home, the stale row replaced
+    # A home's seconds are measured when it runs: equal values mean it was not run again.
+    assert after.loc["h1", "seconds"] == before.loc["h1", "seconds"]
+    assert after.loc["h4", "seconds"] == before.loc["h4", "seconds"]
+    assert after.loc["h2", "seconds"] != before.loc["h2", "seconds"]
+    assert after.loc["h2", "inputs_sha256"] != before.loc["h2", "inputs_sha256"]
+    # The new row is of the new file: its log digest is hashlib's SHA-256 of the changed bytes.
+    assert after.loc["h2", "log_sha256"] == hashlib.sha256((tmp_path / "logs" / "h2.csv").read_bytes()).hexdigest()
+
+    # A hive partition: a changed file in this home's folder makes this home, and only it, stale.
+    part = tmp_path / "dataset" / "home_id=h4"
+    (name,) = os.listdir(part)
+    frame = pd.read_parquet(part / name)
+    frame.loc[50, "indoor_c"] += 0.1
+    frame.to_parquet(part / name, index=False)
+    third = run_fleet(manifest, out, workers=1, model="2R2C")
+    assert (third.n_skipped, third.n_stale, third.n_run) == (2, 1, 1)
+    last = pd.read_parquet(out).set_index("home_id")
+    assert last.loc["h2", "seconds"] == after.loc["h2", "seconds"]
+    assert last.loc["h4", "seconds"] != after.loc["h4", "seconds"]
+
+
+def test_resume_recalculates_a_home_whose_floor_area_changed(fleet_dir, tmp_path):
+    manifest = _own_fleet(fleet_dir, tmp_path)
+    out = tmp_path / "RESULTS.parquet"
+    run_fleet(manifest, out, workers=1, model="1R1C")
+    before = pd.read_parquet(out).set_index("home_id")
+    manifest = _own_fleet(fleet_dir, tmp_path / "moved", area_h1=80)  # new area; same files elsewhere
+    run = run_fleet(manifest, out, workers=1, model="1R1C")
+    # Paths count only through their content: the moved h2 and h4 are kept.
+    assert (run.n_skipped, run.n_stale, run.n_run) == (2, 1, 1)
+    after = pd.read_parquet(out).set_index("home_id")
+    assert after.loc["h2", "seconds"] == before.loc["h2", "seconds"]
+    assert after.loc["h1", "floor_area_m2"] == 80
+    assert after.loc["h1", "ua_per_floor_area_w_per_m2k"] == pytest.approx(after.loc["h1", "ua_w_per_k"] / 80)
+    # The --gains option is an input too: every home is stale under another gains model.
+    homes = read_manifest(manifest)
+    assert input_fingerprint(homes[0], "1R1C", "day_night") != input_fingerprint(homes[0], "1R1C", "constant")
+
+
+def test_output_without_fingerprints_is_refused_in_one_line(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(f"id,log,site\nh1,{root / 'logs' / 'h1.csv'},\"{SITE}\"\n")
+    out = tmp_path / "R.parquet"
+    old = pd.DataFrame({name: pd.Series([], dtype=kind) for name, kind in RESULT_COLUMNS if name != "inputs_sha256"})
+    old.to_parquet(out, index=False)
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--model", "1R1C"])
+    assert result.exit_code == 2
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("thermorc: error: R.parquet: was written by an older thermorc")
+    assert "write to a new --out, or delete it" in lines[0]
+    assert sorted(os.listdir(tmp_path)) == ["R.parquet", "homes.csv"]  # untouched, no lock left
+
+
+HOLD_LOCK = (
+    "import sys\n"
+    "from thermorc.fleet import OutputLock\n"
+    "lock = OutputLock(sys.argv[1]).acquire()\n"
+    "print('ready', flush=True)\n"
+    "sys.stdin.read()\n"
+    "lock.release()\n"
+)
+
+
+def test_cli_second_run_on_a_held_output_exits_2_naming_the_holder(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(f"id,log,site\nh1,{root / 'logs' / 'h1.csv'},\"{SITE}\"\n")
+    out = tmp_path / "R.parquet"
+    holder = subprocess.Popen([sys.executable, "-c", HOLD_LOCK, str(out)], stdin=subprocess.PIPE,
+                              stdout=subprocess.PIPE, text=True)
+    try:
+        assert holder.stdout.readline().strip() == "ready"
+        result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--model", "1R1C"])
+        assert result.exit_code == 2
+        lines = result.stderr.strip().splitlines()
+        assert len(lines) == 1, lines
+        assert lines[0].startswith("thermorc: error: R.parquet: is being written by another thermorc fleet run ")
+        assert f"pid {holder.pid} on host {socket.gethostname()}" in lines[0]
+        assert not out.exists() and os.path.exists(lock_path(out))  # the holder's lock is left alone
+    finally:
+        holder.stdin.close()
+        holder.wait(timeout=30)
+    assert not os.path.exists(lock_path(out))  # the holder released it
+    # A lock from another host cannot be checked from here: refused, naming that host.
+    with open(lock_path(out), "w") as handle:
+        json.dump({"pid": 1, "host": "elsewhere.invalid", "started": "2024-01-01T00:00:00+00:00"}, handle)
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--model", "1R1C"])
+    assert result.exit_code == 2 and "pid 1 on host elsewhere.invalid" in result.stderr
+    assert len(result.stderr.strip().splitlines()) == 1 and not out.exists()
+
+
+def test_cli_takes_over_a_stale_lock_of_a_dead_process(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(f"id,log,site\nh1,{root / 'logs' / 'h1.csv'},\"{SITE}\"\n")
+    out = tmp_path / "R.parquet"
+    gone = subprocess.Popen([sys.executable, "-c", "pass"])
+    gone.wait(timeout=30)  # reaped: its pid no longer runs
+    with open(lock_path(out), "w") as handle:
+        json.dump({"pid": gone.pid, "host": socket.gethostname(), "started": "2024-01-01T00:00:00+00:00"}, handle)
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--model", "1R1C"])
+    assert result.exit_code == 0, result.output
+    assert f"thermorc: warning: R.parquet: took over a lock left by pid {gone.pid}, which is not running" in result.stderr
+    assert pd.read_parquet(out)["home_id"].tolist() == ["h1"]
+    assert not os.path.exists(lock_path(out))  # released at the end
 
 
 def test_calibrate_home_never_raises(tmp_path):

@@ -10,12 +10,19 @@ bad, into one flat row; :func:`run_fleet` sends homes to a local process pool
 cluster in bounded batches and streams the rows to Parquet; :func:`summarise` describes the
 distribution of the results.
 
+Resume decides by content: each row carries an input fingerprint
+(:func:`input_fingerprint`, a SHA-256 over the bytes of the files the home reads and its
+manifest fields and options); a row whose fingerprint differs from the home's fingerprint now
+is stale and its home is calculated again. One run at a time writes an output: the run holds
+an :class:`OutputLock` on it from start to end.
+
 Durability: every finished batch is written, atomically, as one small Parquet file in a
 journal folder beside the output (``RESULTS.parquet.partial/``) and as one row group of a
 temporary output file. The temporary file replaces ``RESULTS.parquet`` only when the run
 ends, so an interrupted run leaves the previous output untouched and the journal holding
 every finished batch; the next run with the same output picks up the old output and the
-journal, skips the homes in them and calculates the rest. The module adds no physics.
+journal, skips the homes in them that are current and calculates the rest. The module adds
+no physics.
 """
 
 from __future__ import annotations
@@ -35,7 +42,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 import pandas as pd
 
-from thermorc.errors import InputError
+from thermorc.errors import InputError, ThermorcWarning
 
 __all__ = [
     "HomeSpec",
@@ -48,6 +55,9 @@ __all__ = [
     "summarise",
     "summary_path",
     "journal_path",
+    "lock_path",
+    "input_fingerprint",
+    "OutputLock",
 ]
 
 #: Manifest columns (CSV header names, TOML keys). ``id`` and ``log`` are required.
@@ -92,6 +102,7 @@ RESULT_COLUMNS = (
     ("column_map_sha256", "string"),
     ("weather_sha256", "string"),
     ("construction_sha256", "string"),
+    ("inputs_sha256", "string"),
 )
 
 #: Joins several warnings in one text cell.
@@ -573,6 +584,351 @@ def calibrate_home(home, model="auto", gains="constant"):
 
 
 # ---------------------------------------------------------------------------------------------
+# Input fingerprints (what decides, on resume, whether a row is still current)
+# ---------------------------------------------------------------------------------------------
+
+#: Version of the fingerprint recipe; a change of recipe makes every older row stale.
+FINGERPRINT_RECIPE = 1
+
+# pyarrow's dataset discovery skips files and folders whose name starts with these
+# (pyarrow.dataset.dataset, ``ignore_prefixes``, default ['.', '_']); the fingerprint of a
+# dataset follows it, so that a writer's temporary files do not make its homes stale.
+_DATASET_IGNORE_PREFIXES = (".", "_")
+
+
+class _DigestCache:
+    """
+    SHA-256 of files, each file read once per run.
+
+    Many homes share a weather file or one Parquet dataset; the cache, keyed by the file's
+    identity and its size and modification time at the moment of hashing, keeps that shared
+    file from being read once per home. It lives for one run only, so that the content hash,
+    not the modification time, is what a resume compares.
+    """
+
+    def __init__(self):
+        self._known = {}
+
+    def file(self, path):
+        """Hex SHA-256 of one file's bytes (read in 1 MiB blocks)."""
+        from thermorc.chain import file_digest
+
+        st = os.stat(path)
+        key = (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
+        if key not in self._known:
+            self._known[key] = file_digest(path)
+        return self._known[key]
+
+    def tree(self, folder):
+        """Digest of every data file under ``folder``: sorted relative names and their SHA-256."""
+        import hashlib
+
+        digest = hashlib.sha256()
+        for root, dirs, files in os.walk(folder, followlinks=True):
+            dirs[:] = sorted(d for d in dirs if not d.startswith(_DATASET_IGNORE_PREFIXES))
+            for name in sorted(f for f in files if not f.startswith(_DATASET_IGNORE_PREFIXES)):
+                path = os.path.join(root, name)
+                rel = os.path.relpath(path, folder).replace(os.sep, "/")
+                digest.update(f"{rel}\0{self.file(path)}\n".encode())
+        return digest.hexdigest()
+
+
+def _content(path, cache, folder_ok=False):
+    """What a home reads from ``path``, as a short text: a digest, or why there is none."""
+    if path is None:
+        return None
+    try:
+        if os.path.isdir(path):
+            # A folder is read only as a Parquet dataset; anywhere else it is an error row,
+            # and hashing, say, a whole system folder would cost much and tell nothing.
+            return "tree:" + cache.tree(path) if folder_ok else f"folder:{path}"
+        return "file:" + cache.file(path)
+    except (OSError, ValueError) as exc:  # missing, unreadable, a NUL byte in the name
+        # The path is part of the marker: naming another missing file is a change.
+        return f"unreadable:{type(exc).__name__}:{path}"
+
+
+def input_fingerprint(home, model="auto", gains="constant", cache=None):
+    """
+    SHA-256 over everything a home's result depends on.
+
+    Parameters
+    ----------
+    home : HomeSpec
+        The home.
+    model, gains : str
+        The model and gains options of the run.
+    cache : _DigestCache, optional
+        File digests already computed in this run.
+
+    Returns
+    -------
+    str
+        Hex digest of a canonical JSON record (sorted keys) of: the bytes of the log (for a
+        hive-partitioned dataset the files of the home's partition folder; for any other
+        dataset, all its files), column map, weather and construction files, each as its
+        SHA-256; the manifest fields ``partition``, ``site``, ``tz``, ``interval`` and
+        ``floor_area_m2``; ``model``, ``gains`` and the recipe version. File paths count
+        only through their content, so moving the data keeps rows current.
+
+    Notes
+    -----
+    A file's size and modification time do not prove that its content is unchanged (a copy
+    that preserves times, or a coarse-clock file system, keeps both); the digest is of the
+    bytes. Files are hashed before the home is calibrated, so a change made while it runs
+    shows at the next resume. SHA-256 is specified in NIST FIPS 180-4, "Secure Hash
+    Standard (SHS)," 2015, doi:10.6028/NIST.FIPS.180-4.
+    """
+    import hashlib
+    import json
+
+    cache = cache if cache is not None else _DigestCache()
+    log = home.log
+    if home.partition and log is not None and os.path.isdir(log):
+        hive = os.path.join(log, *[f"{k}={v}" for k, v in home.partition.items()])
+        if os.path.isdir(hive):  # the same choice as _partition_frame
+            log = hive
+    record = {
+        "recipe": FINGERPRINT_RECIPE,
+        "log": _content(log, cache, folder_ok=bool(home.partition)),
+        "column_map": _content(home.column_map, cache),
+        "weather": _content(home.weather, cache),
+        "construction": _content(home.construction, cache),
+        "partition": sorted(home.partition.items()),
+        "site": home.site,
+        "tz": home.tz,
+        "interval": home.interval,
+        "floor_area_m2": home.floor_area_m2,
+        "model": model,
+        "gains": gains,
+    }
+    text = json.dumps(record, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+# ---------------------------------------------------------------------------------------------
+# Output lock (one run at a time writes an output)
+# ---------------------------------------------------------------------------------------------
+
+def lock_path(out):
+    """
+    The lock file beside ``out`` held while a run writes it.
+
+    Parameters
+    ----------
+    out : str or os.PathLike
+        The results file.
+
+    Returns
+    -------
+    str
+        ``out`` with ``.lock`` appended (``RESULTS.parquet`` -> ``RESULTS.parquet.lock``).
+    """
+    return os.fspath(out) + ".lock"
+
+
+def _pid_alive(pid):
+    """Whether a process with this id runs on this machine (POSIX ``kill(pid, 0)``)."""
+    if os.name != "posix":
+        return True  # no safe probe here (signal 0 ends a process on Windows): assume it runs
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True  # it exists, under another user
+    except (OverflowError, ValueError):
+        return False
+    return True
+
+
+def _flock(fd):
+    """Try an exclusive advisory lock on ``fd``: True if taken, False if held elsewhere, None if unsupported."""
+    try:
+        import fcntl
+    except ImportError:
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        return False
+    except OSError:
+        return None  # e.g. a file system without flock
+    return True
+
+
+class OutputLock:
+    """
+    An exclusive lock on one fleet output, held for a whole run.
+
+    The lock file beside the output (:func:`lock_path`) holds the holder's pid, host name and
+    start time as JSON. It appears in one step, already filled in and locked: it is written
+    under a temporary name and hard-linked to the lock name, and a link fails if the name
+    exists (POSIX ``link``, IEEE Std 1003.1-2017, error EEXIST). The Linux ``open(2)`` manual
+    page, under ``O_EXCL``, gives this recipe for lock files that must also work over NFS.
+    The holder also keeps an ``flock`` on it, which the system drops when the process dies.
+    A lock that is not flocked, from this host, whose pid no longer runs, is stale: it is
+    taken over with a :class:`~thermorc.errors.ThermorcWarning`. Anything else stops the
+    run with an :class:`~thermorc.errors.InputError` that names the holder.
+
+    Parameters
+    ----------
+    out : str
+        The output file to lock.
+    """
+
+    def __init__(self, out):
+        self.out = os.fspath(out)
+        self.path = lock_path(self.out)
+        self.fd = None
+
+    def _info(self):
+        import datetime
+        import json
+        import socket
+
+        started = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
+        return json.dumps({"pid": os.getpid(), "host": socket.gethostname(), "started": started}).encode()
+
+    def _create(self):
+        """Put a filled-in, locked lock file in place; False if one exists."""
+        folder = os.path.dirname(os.path.abspath(self.path))
+        fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix="-" + os.path.basename(self.path), dir=folder)
+        placed = False
+        try:
+            os.fchmod(fd, 0o644)  # others may read who holds it
+            os.write(fd, self._info())
+            os.fsync(fd)
+            _flock(fd)
+            try:
+                os.link(tmp, self.path)
+            except FileExistsError:
+                return False
+            except OSError:
+                # No hard links on this file system: an exclusive create instead. The file is
+                # empty for a moment, so a run that looks then may see an unreadable lock.
+                os.close(fd)
+                fd = -1
+                try:
+                    fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_RDWR, 0o644)
+                except FileExistsError:
+                    return False
+                os.write(fd, self._info())
+                os.fsync(fd)
+                _flock(fd)
+            self.fd = fd
+            placed = True
+            return True
+        finally:
+            if not placed:
+                with contextlib.suppress(OSError):
+                    os.close(fd)
+            with contextlib.suppress(OSError):
+                os.remove(tmp)
+
+    def _holder(self, raw):
+        import json
+
+        try:
+            info = json.loads(raw.decode("utf-8"))
+            pid = int(info["pid"])
+        except (ValueError, KeyError, TypeError, UnicodeDecodeError):
+            return None
+        if pid <= 0:  # kill() would address a process group, not a process
+            return None
+        return {"pid": pid, "host": str(info.get("host", "?")), "started": str(info.get("started", "?"))}
+
+    def _refuse(self, holder, why):
+        who = "another run" if holder is None else (
+            f"pid {holder['pid']} on host {holder['host']}, started {holder['started']}")
+        raise InputError(
+            f"is being written by another thermorc fleet run ({who}; {why}); wait for it to finish or write to "
+            f"another --out (delete {os.path.basename(self.path)} only if that run is gone)", path=self.out,
+        )
+
+    def _take_over_or_refuse(self):
+        """Inspect an existing lock file; on a stale one, keep it (locked) as ours."""
+        import socket
+
+        try:
+            fd = os.open(self.path, os.O_RDWR)
+        except FileNotFoundError:
+            return False  # released meanwhile: try to create it again
+        try:
+            got = _flock(fd)
+            raw = os.read(fd, 4096)
+            holder = self._holder(raw)
+            if got is False:
+                self._refuse(holder, "its lock is held")
+            if got:
+                try:
+                    moved = os.fstat(fd).st_ino != os.stat(self.path).st_ino
+                except FileNotFoundError:
+                    moved = True
+                if moved:
+                    os.close(fd)  # the holder removed it as we opened it: start again
+                    return False
+            if holder is None:
+                if got is None:
+                    self._refuse(None, "the lock file cannot be read")
+            elif holder["host"] != socket.gethostname():
+                self._refuse(holder, "a process on another host cannot be checked from here")
+            elif _pid_alive(holder["pid"]):
+                self._refuse(holder, "that process is running")
+            os.lseek(fd, 0, os.SEEK_SET)
+            os.ftruncate(fd, 0)
+            os.write(fd, self._info())
+            os.fsync(fd)
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.close(fd)
+            raise
+        self.fd = fd
+        left = "an unreadable lock" if holder is None else f"a lock left by pid {holder['pid']}, which is not running"
+        warnings.warn(
+            f"{os.path.basename(self.out)}: took over {left} ({os.path.basename(self.path)}); the journal of that run, "
+            "if any, is resumed", ThermorcWarning, stacklevel=3,
+        )
+        return True
+
+    def acquire(self):
+        """
+        Take the lock.
+
+        Returns
+        -------
+        OutputLock
+            ``self``, holding the lock until :meth:`release`.
+
+        Raises
+        ------
+        InputError
+            Another run holds it; the message names its pid, host and start time.
+        """
+        for _ in range(5):  # more than one round only while other runs come and go
+            if self._create() or self._take_over_or_refuse():
+                return self
+        self._refuse(None, "its lock file keeps changing")
+
+    def release(self):
+        """Remove the lock file (while still holding it, so no waiting run takes a removed file)."""
+        if self.fd is None:
+            return
+        with contextlib.suppress(OSError):
+            if os.stat(self.path).st_ino == os.fstat(self.fd).st_ino:  # still ours, not a successor's
+                os.remove(self.path)
+        with contextlib.suppress(OSError):
+            os.close(self.fd)
+        self.fd = None
+
+    def __enter__(self):
+        return self.acquire()
+
+    def __exit__(self, *exc):
+        self.release()
+
+
+# ---------------------------------------------------------------------------------------------
 # Runner
 # ---------------------------------------------------------------------------------------------
 
@@ -592,9 +948,16 @@ class FleetRun:
     n_homes : int
         Homes in the manifest.
     n_skipped : int
-        Homes already in the output (or its journal) and not calculated again.
+        Homes kept from the output (or its journal), current, and not calculated again.
+    n_stale : int
+        Homes that had a row whose inputs have changed since (another input fingerprint,
+        see :func:`input_fingerprint`): calculated again.
+    n_retried : int
+        Homes whose earlier error row was dropped by ``retry_errors``: calculated again.
+    n_new : int
+        Homes with no earlier row.
     n_run : int
-        Homes calculated in this run.
+        Homes calculated in this run (``n_stale + n_retried + n_new``).
     n_errors : int
         Homes of this run that ended with ``status = "error"``.
     seconds : float
@@ -606,6 +969,9 @@ class FleetRun:
     summary: pd.DataFrame
     n_homes: int
     n_skipped: int
+    n_stale: int
+    n_retried: int
+    n_new: int
     n_run: int
     n_errors: int
     seconds: float
@@ -613,15 +979,38 @@ class FleetRun:
 
 def _check_schema(schema, path):
     names = [name for name, _ in RESULT_COLUMNS]
-    if list(schema.names) != names:
+    found = list(schema.names)
+    if found == names:
+        return
+    if found == [n for n in names if n != "inputs_sha256"]:
         raise InputError(
-            "is not a thermorc fleet output of this version (its columns differ; write to a new file, or "
-            "delete it to start again)", path=path,
+            "was written by an older thermorc without input fingerprints (column inputs_sha256), so rows whose "
+            "inputs have changed cannot be told apart; write to a new --out, or delete it (and its .partial folder) "
+            "to calculate every home again", path=path,
         )
+    raise InputError(
+        "is not a thermorc fleet output of this version (its columns differ; write to a new file, or "
+        "delete it to start again)", path=path,
+    )
 
 
-def _carry_over(writer, source, done, model, retry_errors, out):
-    """Copy the rows of an earlier output or journal file, row group by row group."""
+@dataclass
+class _Resume:
+    """Homes met in earlier rows: ids kept, and ids dropped because stale or retried."""
+
+    done: set = field(default_factory=set)
+    stale: set = field(default_factory=set)
+    retried: set = field(default_factory=set)
+
+
+def _carry_over(writer, source, resume, fingerprints, model, retry_errors, out):
+    """
+    Copy the current rows of an earlier output or journal file, row group by row group.
+
+    A row is dropped when its home already has a row, when its input fingerprint differs
+    from the home's fingerprint now (stale), or, with ``retry_errors``, when it is an error.
+    Rows of homes no longer in the manifest are kept as they are.
+    """
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -630,7 +1019,6 @@ def _carry_over(writer, source, done, model, retry_errors, out):
     except Exception as exc:  # noqa: BLE001 - pyarrow raises many types for damaged files
         raise InputError(f"cannot read it to resume ({type(exc).__name__}); delete it to start again", path=source) from None
     _check_schema(handle.schema_arrow, source)
-    kept = 0
     for i in range(handle.num_row_groups):
         table = handle.read_row_group(i)
         asked = set(table.column("model_requested").to_pylist()) - {None}
@@ -640,17 +1028,26 @@ def _carry_over(writer, source, done, model, retry_errors, out):
                 path=out, column="model_requested",
             )
         ids = table.column("home_id").to_pylist()
-        keep = [i not in done for i in ids]
-        if retry_errors:
-            status = table.column("status").to_pylist()
-            keep = [k and s != "error" for k, s in zip(keep, status)]
+        stamps = table.column("inputs_sha256").to_pylist()
+        status = table.column("status").to_pylist()
+        keep = []
+        for home_id, stamp, state in zip(ids, stamps, status):
+            if home_id in resume.done:
+                keep.append(False)
+            elif home_id in fingerprints and stamp != fingerprints[home_id]:
+                resume.stale.add(home_id)
+                keep.append(False)
+            elif retry_errors and state == "error":
+                resume.retried.add(home_id)
+                keep.append(False)
+            else:
+                keep.append(True)
+                # One row per home: a later row of the same home (journal) is dropped above.
+                resume.done.add(home_id)
         if not all(keep):
             table = table.filter(pa.array(keep, type=pa.bool_()))
         if table.num_rows:
             writer.write_table(table)
-            done.update(table.column("home_id").to_pylist())
-            kept += table.num_rows
-    return kept
 
 
 def _write_journal(folder, seq, table):
@@ -785,7 +1182,9 @@ def run_fleet(
         Manifest file (see :func:`read_manifest`) or homes already read.
     out : str or os.PathLike
         Results Parquet file. When it exists, or a journal of an interrupted run beside it
-        does, the homes in them are kept and skipped (resume).
+        does, the homes in them whose inputs are unchanged (the same
+        :func:`input_fingerprint`) are kept and skipped (resume); the others are calculated
+        again. The run holds :class:`OutputLock` on ``out`` throughout.
     workers : int, optional
         Processes of the local pool; default :func:`os.cpu_count`.
     scheduler : str, optional
@@ -801,17 +1200,21 @@ def run_fleet(
     retry_errors : bool
         Calculate again the homes that ended in error in an earlier run.
     on_start : callable, optional
-        Called once as ``on_start(n_to_run)`` before the first batch.
+        Called once as ``on_start(n_to_run, counts)`` before the first batch; ``counts`` has
+        the keys ``kept``, ``stale``, ``retried`` and ``new`` (see :class:`FleetRun`).
     on_row : callable, optional
         Called with each new row as it arrives (for a progress bar).
 
     Returns
     -------
     FleetRun
-    """
-    import pyarrow as pa
-    import pyarrow.parquet as pq
 
+    Raises
+    ------
+    InputError
+        A bad manifest or option; an output being written by another run (its lock holder
+        is named); an output of another version or another ``--model``.
+    """
     started = time.perf_counter()
     if model not in _MODELS:
         raise InputError(f"model {model!r} is not known (expected one of {', '.join(_MODELS)})")
@@ -828,32 +1231,49 @@ def run_fleet(
     if batch_size < 1:
         raise InputError(f"--batch is {batch_size} (expected 1 or more)")
     kwargs = {"model": model, "gains": gains}
+    folder = os.path.dirname(out)
+    os.makedirs(folder, exist_ok=True)
+    with OutputLock(out):
+        return _run_locked(homes, out, scheduler, workers, batch_size, retry_errors, kwargs, on_start, on_row, started)
+
+
+def _run_locked(homes, out, scheduler, workers, batch_size, retry_errors, kwargs, on_start, on_row, started):
+    """The body of :func:`run_fleet`, run while holding the output's lock."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
     schema = _schema()
     journal = journal_path(out)
     folder = os.path.dirname(out)
-    os.makedirs(folder, exist_ok=True)
+    # Hashed before any home runs, so a file changed while its home runs shows next time.
+    cache = _DigestCache()
+    fingerprints = {h.home_id: input_fingerprint(h, cache=cache, **kwargs) for h in homes}
     fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix="-" + os.path.basename(out), dir=folder)
     os.close(fd)
     n_run = n_errors = 0
     writer = pq.ParquetWriter(tmp, schema)
     try:
-        done = set()
+        resume = _Resume()
         sources = [out] if os.path.exists(out) else []
         if os.path.isdir(journal):
             sources += sorted(os.path.join(journal, f) for f in os.listdir(journal) if f.endswith(".parquet"))
         for source in sources:
-            _carry_over(writer, source, done, model, retry_errors, out)
-        todo = [h for h in homes if h.home_id not in done]
-        n_skipped = len(homes) - len(todo)
+            _carry_over(writer, source, resume, fingerprints, kwargs["model"], retry_errors, out)
+        todo = [h for h in homes if h.home_id not in resume.done]
+        counts = {"kept": len(homes) - len(todo), "stale": 0, "retried": 0, "new": 0}
+        for h in todo:
+            kind = "stale" if h.home_id in resume.stale else "retried" if h.home_id in resume.retried else "new"
+            counts[kind] += 1
         pool = _DaskPool(scheduler) if scheduler is not None else _LocalPool(min(workers, max(len(todo), 1)))
         with pool:
             if on_start is not None:
-                on_start(len(todo))
+                on_start(len(todo), dict(counts))
             for seq, first in enumerate(range(0, len(todo), batch_size)):
                 batch = todo[first:first + batch_size]
                 rows = []
 
                 def collect(row):
+                    row["inputs_sha256"] = fingerprints[row["home_id"]]
                     rows.append(row)
                     if on_row is not None:
                         on_row(row)
@@ -884,7 +1304,8 @@ def run_fleet(
 
     write_csv(csv_path, summary, index=False)
     return FleetRun(
-        out=out, summary_csv=csv_path, summary=summary, n_homes=len(homes), n_skipped=n_skipped, n_run=n_run,
+        out=out, summary_csv=csv_path, summary=summary, n_homes=len(homes), n_skipped=counts["kept"],
+        n_stale=counts["stale"], n_retried=counts["retried"], n_new=counts["new"], n_run=n_run,
         n_errors=n_errors, seconds=time.perf_counter() - started,
     )
 

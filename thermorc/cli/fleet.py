@@ -28,6 +28,10 @@ def _cell(value):
     return str(value)
 
 
+def _plan_text(new, stale, retried):
+    return f"{new} new, {stale} with changed inputs, {retried} errors retried"
+
+
 def _print_summary(run):
     from rich.table import Table
 
@@ -41,8 +45,8 @@ def _print_summary(run):
         table.add_row(*[_cell(rec.get(k)) for k in ("quantity", "unit", "count", "mean", "p10", "p50", "p90")])
     out_console.print(table)
     out_console.print(
-        f"{run.n_run} homes calculated, {run.n_skipped} kept from before, errors: {run.n_errors}, "
-        f"in {run.seconds:.1f} s; summary in {run.summary_csv}", markup=False,
+        f"{run.n_run} homes calculated ({_plan_text(run.n_new, run.n_stale, run.n_retried)}), {run.n_skipped} kept "
+        f"from before, errors: {run.n_errors}, in {run.seconds:.1f} s; summary in {run.summary_csv}", markup=False,
     )
     out_console.print(CAUTION, markup=False)
 
@@ -66,13 +70,21 @@ def fleet(
     from thermorc.fleet import journal_path, run_fleet
 
     progress = Progress(
-        TextColumn("homes"), BarColumn(), MofNCompleteColumn(), TextColumn("errors: {task.fields[errors]}"),
+        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TextColumn("errors: {task.fields[errors]}"),
         TimeRemainingColumn(), console=err_console, disable=quiet, transient=False,
     )
     task = {}
 
-    def on_start(n):
-        task["id"] = progress.add_task("homes", total=n, errors=0)
+    def on_start(n, counts):
+        label = "homes"
+        if counts["kept"] or counts["stale"] or counts["retried"]:
+            plan = _plan_text(counts["new"], counts["stale"], counts["retried"])
+            label = f"homes ({counts['kept']} kept, {counts['stale']} changed, {counts['retried']} retried, {counts['new']} new)"
+            if not quiet:
+                # A plain line too: batch logs do not keep a progress bar's redraws.
+                err_console.print(f"thermorc: resuming {out}: {counts['kept']} homes kept, {n} to calculate ({plan})",
+                                  markup=False)
+        task["id"] = progress.add_task(label, total=n, errors=0)
         task["errors"] = 0
 
     def on_row(row):
