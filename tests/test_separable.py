@@ -17,7 +17,7 @@ import scipy.signal
 from test_estimate import stochastic_log
 from thermorc import estimate
 from thermorc.network import PRESETS, Network
-from thermorc.separable import ResponseBasis, preset_matrices
+from thermorc.separable import ResponseBasis, symmetric_modes, preset_matrices
 
 RC = {
     "1R1C": [5e-3, 3e7],
@@ -83,6 +83,7 @@ def test_bounded_linear_solve_matches_lsq_linear():
     # is that of scipy.optimize.lsq_linear (bounded-variable least squares).
     rng = np.random.default_rng(4)
     basis = ResponseBasis.__new__(ResponseBasis)
+    basis._held = None  # the bounds held last time are tried first: reuse across trials on purpose
     for trial in range(30):
         basis.n_solar, basis.n_gains, basis.n_hidden = 2, 1, 2
         basis.n_linear = 5
@@ -121,3 +122,33 @@ def test_separable_fit_reaches_the_full_least_squares_optimum():
     assert np.all(np.abs(sol.jac - ref_jac) <= 1e-3 * scale + 1e-9)
     ua = estimate._ua_of("2R2C", [math.exp(t) for t in sol.x[:4]])
     assert ua == pytest.approx(layout.network(sol.x).heat_loss_coefficient_w_per_k()["total"], rel=1e-12)
+
+
+def test_closed_form_modes_match_eigh():
+    # numpy.linalg.eigh is the reference for the symmetric 2x2 eigenproblem.
+    rng = np.random.default_rng(2)
+    for _ in range(200):
+        g = 10 ** rng.uniform(-4, 0, 3)
+        s = np.array([[g[0] + g[2], -g[0]], [-g[0], g[0] + g[1]]])
+        rates, v = symmetric_modes(s)
+        ref_rates, ref_v = np.linalg.eigh(s)
+        np.testing.assert_allclose(rates, ref_rates, rtol=1e-9)
+        np.testing.assert_allclose(np.abs(v.T @ ref_v), np.eye(2), atol=1e-7)
+
+
+@pytest.mark.parametrize("model,gains", [("1R1C", "constant"), ("2R2C", "day_night"), ("3R2C", "constant")])
+def test_holdout_from_the_responses_equals_predict(model, gains):
+    # The held-out score continues the training simulation; thermorc.estimate.predict (a plain
+    # run of the network through thermorc.simulate) must give the same RMSE.
+    log, _, _ = stochastic_log(seed=5, days=10, step_s=900.0)
+    data = estimate.calibration_data(log)
+    cut = int(len(data.y) * 0.8)
+    train = data.subset(cut)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = estimate.calibrate(train, model=model, gains=gains, energy_metrics=False)
+    fast = estimate._holdout_rmse(res, data, cut, train)
+    other = estimate.CalibrationData(train.index, train.y, train.u, [], train.step_s, train.has_solar)
+    plain = estimate._holdout_rmse(res, data, cut, other)
+    assert fast == pytest.approx(plain, rel=1e-9)
+    assert 0 < fast < 3.0  # a finite score (the 1R1C misses this 2R2C home by about 1 K)

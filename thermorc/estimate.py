@@ -56,7 +56,7 @@ from thermorc.errors import (
 )
 from thermorc.network import PRESETS, Network, modes_of
 from thermorc.result import CalibrationResult
-from thermorc.separable import ResponseBasis
+from thermorc.separable import ResponseBasis, preset_matrices, symmetric_modes
 from thermorc.simulate import hold_setpoint, run_modes
 
 __all__ = [
@@ -82,12 +82,15 @@ STATE_BOUNDS_C = (-50.0, 60.0)
 # Residuals are compared as hourly means: thermostat cycling within the hour is not the
 # dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0
-SCOUT_NFEV = 30
+SCOUT_NFEV = 10
 # A fit that runs longer than this stops with a clear message instead of seeming to hang.
 TIME_LIMIT_S = 900.0
 # Log R and log C have similar sensitivities only after scaling: let the solver scale by the
 # Jacobian's columns (scipy.optimize.least_squares, x_scale="jac").
 X_SCALE = "jac"
+# Relative change of the cost (and of the parameters) at which the search stops: far below
+# any parameter's standard error, and every further iteration costs a Jacobian.
+FTOL = 1e-8
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -436,19 +439,15 @@ def _simulate_indoor(layout: _Layout, theta, data: CalibrationData, segments=Non
 # -- the estimators -----------------------------------------------------------------------
 def _start_values(model, data, previous=None):
     """Start values: from a simpler fitted model when given, else from the data."""
-    balance = energy_balance_start(data)
-    ua = balance["ua_w_per_k"]
-    tau = free_float_time_constant_s(data) or 24 * 3600.0
-    start = {
-        "solar_aperture_m2": balance["aperture_m2"],
-        "internal_gains_w": balance["gains_w"],
-    }
-    if previous is not None:
-        start.update({k: v for k, v in previous.items() if k in ("solar_aperture_m2", "internal_gains_w", "solar_to_envelope_share")})
-        if "internal_gains_day_w" in previous:
-            start["internal_gains_w"] = 0.5 * (previous["internal_gains_day_w"] + previous["internal_gains_night_w"])
-        ua = previous.get("_ua", ua)
-        tau = previous.get("_tau", tau)
+    # Apertures, gains and initial states are solved exactly for each trial R and C, so only
+    # R and C need starting values; these placeholders only fill the layout.
+    start = {"solar_aperture_m2": 1.0, "internal_gains_w": 0.0}
+    previous = previous or None
+    if previous is not None and "_ua" in previous and "_tau" in previous:
+        ua, tau = previous["_ua"], previous["_tau"]
+    else:
+        ua = energy_balance_start(data)["ua_w_per_k"]
+        tau = free_float_time_constant_s(data) or 24 * 3600.0
     r_total = 1.0 / ua
     c_total = tau / r_total
     candidates = []
@@ -495,11 +494,13 @@ def _blocks(data, observed, block):
     for seg in data.segments:
         rows = np.arange(seg.start, seg.stop)
         ids = (rows - seg.start) // block
-        for b in np.unique(ids):
-            members = rows[(ids == b) & observed[rows]]
-            if members.size * 2 >= block:
-                block_id[members] = n_blocks
-                n_blocks += 1
+        seen = observed[rows]
+        # A block is compared when at least half of its rows were observed.
+        enough = np.bincount(ids[seen], minlength=ids[-1] + 1) * 2 >= block
+        number = np.cumsum(enough) - 1 + n_blocks
+        keep = seen & enough[ids]
+        block_id[rows[keep]] = number[ids[keep]]
+        n_blocks += int(enough.sum())
     return block_id, n_blocks
 
 
@@ -556,7 +557,7 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
             warnings.simplefilter("ignore", RuntimeWarning)
             return scipy.optimize.least_squares(
                 projected, theta0, bounds=(rc_lower, rc_upper), method="trf", x_scale=X_SCALE, max_nfev=nfev,
-                diff_step=1e-6, ftol=1e-10, xtol=1e-10, gtol=1e-8,
+                diff_step=1e-6, ftol=FTOL, xtol=FTOL, gtol=1e-8,
             )
 
     # With several starts each gets a short run; only the best is then run to convergence.
@@ -900,12 +901,15 @@ def _refit_with_ua_prior(layout, sol, data, gains, block, ua_prior, model):
 
 def _derived(layout: _Layout, theta):
     """Heat loss coefficient, time constants and total capacitance for a parameter vector."""
-    net = layout.network(theta)
-    taus = net.time_constants_s()
+    v = layout.values(theta)
+    rc = [v[name] for name in PRESETS[layout.model].parameters]
+    k, _, caps = preset_matrices(layout.model, rc)
+    root = np.sqrt(caps)
+    rates, _ = symmetric_modes(k / np.outer(root, root))
     return {
-        "heat_loss_coefficient_w_per_k": net.heat_loss_coefficient_w_per_k()["total"],
-        "capacitance_j_per_k": net.total_capacitance_j_per_k(),
-        **{f"time_constant_{i + 1}_h": t / 3600.0 for i, t in enumerate(taus)},
+        "heat_loss_coefficient_w_per_k": _ua_of(layout.model, rc),
+        "capacitance_j_per_k": float(caps.sum()),
+        **{f"time_constant_{i + 1}_h": 1.0 / (rate * 3600.0) for i, rate in enumerate(rates)},
     }
 
 
@@ -913,7 +917,7 @@ def _delta_method(layout, theta, cov):
     """Standard errors of log(derived quantity) by central differences of the transform."""
     base = _derived(layout, theta)
     grads = {k: np.zeros(len(theta)) for k in base}
-    for i in range(len(theta)):
+    for i in range(len(PRESETS[layout.model].parameters)):  # the others do not enter them
         h = 1e-5 * max(1.0, abs(theta[i]))
         up, down = theta.copy(), theta.copy()
         up[i] += h
@@ -1449,7 +1453,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         n_used = int(used.sum())
         llf = diagnose.gaussian_loglike_from_rss(rss, n_used)
         k = res.fit["n_params"]
-        holdout = _holdout_rmse(res, data, cut)
+        holdout = _holdout_rmse(res, data, cut, train)
         rows.append({
             "model": model,
             "n_params": k,
@@ -1496,18 +1500,41 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     return final
 
 
-def _holdout_rmse(result, data: CalibrationData, cut):
+def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
     """RMSE of the open-loop prediction of rows after ``cut``, started from the fit's state."""
     if cut >= len(data.y) - 12:
         return math.nan
-    frame = pd.DataFrame(
-        {"outdoor_c": data.u[:, 0], "heating_w": data.u[:, 1], data.solar_column: data.u[:, 2],
-         "internal_gains_w": data.u[:, 3], "indoor_c": data.y},
-        index=data.index,
-    )
-    # The fit's own initial states start the run, so the tail continues the training simulation.
-    pred = predict(result, frame)["indoor_c"].to_numpy()
     tail = slice(cut, len(data.y))
+    same_segments = len(data.segments) == len(train.segments) and all(
+        a.start == b.start for a, b in zip(data.segments, train.segments))
+    if same_segments:
+        # The training fit's own initial states start each segment, so the tail continues the
+        # training simulation exactly (thermorc.separable; the same numbers predict() gives).
+        p = result.parameters
+        model = result.model
+        hours = data.index.hour + data.index.minute / 60.0
+        day = ((hours >= 7) & (hours < 23)) if result.gains_schedule.get("kind") == "day_night" else None
+        basis = ResponseBasis(model, data, day, np.full(len(data.y), -1), 0)
+        rows = basis.rows([p[name] for name in PRESETS[model].parameters])
+        coef = []
+        if basis.has_solar:
+            share = p.get("solar_to_envelope_share", 0.0)
+            coef += [p["solar_aperture_m2"] * (1 - share)] + ([p["solar_aperture_m2"] * share] if basis.n_solar == 2 else [])
+        coef += [p["internal_gains_day_w"], p["internal_gains_night_w"]] if day is not None else [p["internal_gains_w"]]
+        states = result.extras["estimator"]["initial_states"]
+        coef += [states[f"x0_envelope_segment{k}"] for k in range(basis.n_hidden)]
+        pred = rows[:, 0] + rows[:, 1:] @ np.array(coef)
+        inside = np.zeros(len(data.y), dtype=bool)
+        for seg in data.segments:
+            inside[seg] = True
+        pred = np.where(inside, pred, np.nan)
+    else:
+        frame = pd.DataFrame(
+            {"outdoor_c": data.u[:, 0], "heating_w": data.u[:, 1], data.solar_column: data.u[:, 2],
+             "internal_gains_w": data.u[:, 3], "indoor_c": data.y},
+            index=data.index,
+        )
+        pred = predict(result, frame)["indoor_c"].to_numpy()
     err = data.y[tail] - pred[tail]
     err = err[np.isfinite(err)]
     return float(np.sqrt(np.mean(err**2))) if err.size else math.nan

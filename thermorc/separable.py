@@ -23,12 +23,11 @@ import itertools
 import math
 
 import numpy as np
-import scipy.sparse
 
 from thermorc.errors import NetworkError
 from thermorc.simulate import phi_functions
 
-__all__ = ["ResponseBasis", "preset_matrices"]
+__all__ = ["ResponseBasis", "preset_matrices", "symmetric_modes"]
 
 
 def preset_matrices(model, rc):
@@ -113,13 +112,21 @@ class ResponseBasis:
         self.segments = list(data.segments)
         self.n_hidden = (self.n_states - 1) * len(self.segments)
         self.n_linear = self.n_solar + self.n_gains + self.n_hidden
-        rows = np.flatnonzero(block_id >= 0)
-        counts = np.bincount(block_id[rows], minlength=n_blocks).astype(float)
-        # Mean over each block as one sparse product: rows x columns -> blocks x columns.
-        self.averager = scipy.sparse.csr_matrix(
-            (1.0 / counts[block_id[rows]], (block_id[rows], rows)), shape=(n_blocks, len(data.y))
-        )
-        self.y_blocks = self.averager @ np.where(np.isfinite(data.y), data.y, 0.0)
+        used = block_id >= 0
+        counts = np.bincount(block_id[used], minlength=n_blocks).astype(float)
+        self.n_blocks = int(n_blocks)
+        self.block_id = np.asarray(block_id, dtype=np.int64)
+        self.row_weight = np.where(used, 1.0 / counts[np.where(used, block_id, 0)], 0.0) if n_blocks else np.zeros(len(data.y))
+        y = np.where(np.isfinite(data.y) & used, data.y, 0.0)
+        self.y_blocks = np.bincount(block_id[used], weights=(y * self.row_weight)[used], minlength=n_blocks)
+        # Which unit sequence feeds each column (-1: the hidden start's free decay), and the
+        # output column of each kernel column per segment (each has its own hidden start).
+        seq = [0] * self.n_solar + [(1 if self.has_solar else 0) + j for j in range(self.n_gains)]
+        self._col_seq = np.array(seq + ([-1] if self.n_states > 1 else []), dtype=np.int64)
+        lead = list(range(self.n_solar + self.n_gains + 1))
+        self._col_targets = [np.array(lead + ([len(lead) + k] if self.n_states > 1 else []), dtype=np.int64)
+                             for k in range(len(self.segments))]
+        self._held = None  # the bounds held at the last solve: usually the answer next time too
         u = data.u
         self._seg_inputs = []
         for seg in self.segments:
@@ -133,7 +140,7 @@ class ResponseBasis:
                 d = self.day[seg][:-1]
                 seqs += [d, 1.0 - d]
             self._seg_inputs.append(
-                (float(y[np.isfinite(y)][0]), outdoor[:-1], np.diff(outdoor), np.array(seqs), len(outdoor))
+                (float(y[np.isfinite(y)][0]), outdoor[:-1], np.diff(outdoor), np.ascontiguousarray(seqs))
             )
 
     def columns(self, rc):
@@ -152,18 +159,18 @@ class ResponseBasis:
         linear : numpy.ndarray, shape (n_blocks, n_linear)
             Change of the indoor temperature per unit of each linear parameter.
         """
-        rows = self.rows(rc)
-        both = self.averager @ rows
+        both = self._run(rc, self.block_id, self.row_weight, self.n_blocks)
         return both[:, 0], both[:, 1:]
 
     def rows(self, rc):
         """The responses of :meth:`columns` at every row (zero outside the segments)."""
+        n = len(self.data.y)
+        return self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n)
+
+    def _run(self, rc, block_id, row_weight, n_blocks):
         k, g_out, caps = preset_matrices(self.model, rc)
         root = np.sqrt(caps)
-        s = k / np.outer(root, root)
-        rates, v = np.linalg.eigh(s)
-        if not (np.all(np.isfinite(rates)) and rates[0] > 0):
-            raise NetworkError("the network has a mode that does not decay")
+        rates, v = symmetric_modes(k / np.outer(root, root))
         w0 = v[0] / root[0]  # indoor row of the mode shapes: x_indoor = w0 @ z
         w_inv = v.T * root[None, :]  # z = w_inv x
         beta_out = w_inv @ (g_out / caps)
@@ -171,28 +178,24 @@ class ResponseBasis:
         dt = self.step_s
         x = rates * dt
         a = np.exp(-x)
-        phi1, phi2, _ = phi_functions(x)
+        em1 = np.expm1(-x)
+        if x.min() > 1e-3:
+            phi1, phi2 = -em1 / x, (x + em1) / x**2
+        else:  # a mode too slow for the closed forms' precision
+            phi1, phi2, _ = phi_functions(x)
         # Output weight of each mode for each column: solar onto each node, gains, hidden start.
         weights = [w0 * beta_node[:, node] for node in range(self.n_solar)]
         weights += [w0 * beta_node[:, 0]] * self.n_gains
-        col_seq = [0] * self.n_solar + [(1 if self.has_solar else 0) + j for j in range(self.n_gains)]
         if self.n_states > 1:
             weights.append(w0)  # the hidden state starts at w_inv[:, 1] itself
-            col_seq.append(-1)
         col_w = np.array(weights)
-        col_seq = np.array(col_seq, dtype=np.int64)
-        out = np.zeros((len(self.data.y), 1 + self.n_linear))
-        local = np.empty(0)
+        out = np.zeros((n_blocks, 1 + self.n_linear))
         fixed_in = (dt * phi1 * beta_out, dt * phi2 * beta_out, dt * phi1 * beta_node[:, 0], dt * phi1)
-        for k_seg, (seg, (y0, t_out, dt_out, seqs, length)) in enumerate(zip(self.segments, self._seg_inputs)):
-            if local.shape != (length, 1 + col_seq.size):
-                local = np.empty((length, 1 + col_seq.size))
-            _basis_kernel(a, *fixed_in, w_inv[:, 0] * y0, w0, t_out, dt_out, seqs, col_seq, col_w,
-                          w_inv[:, -1].copy(), local)
-            n_lead = 1 + self.n_solar + self.n_gains
-            out[seg, :n_lead] = local[:, :n_lead]
-            if self.n_states > 1:
-                out[seg, n_lead + k_seg] = local[:, -1]
+        hidden0 = np.ascontiguousarray(w_inv[:, -1])
+        for k_seg, (seg, (y0, t_out, dt_out, seqs)) in enumerate(zip(self.segments, self._seg_inputs)):
+            target = self._col_targets[k_seg]
+            _basis_kernel(a, *fixed_in, w_inv[:, 0] * y0, w0, t_out, dt_out, seqs, self._col_seq, col_w, hidden0,
+                          block_id[seg], row_weight[seg], target, out)
         return out
 
     def solve_linear(self, fixed, linear, extra=None):
@@ -220,51 +223,85 @@ class ResponseBasis:
         """
         target = self.y_blocks - fixed
         n_bounded = self.n_solar + self.n_gains
-        coef = _lstsq(linear, target)
-        if np.any(coef[:n_bounded] < 0):
-            best, best_rss = None, math.inf
-            for held in itertools.product((False, True), repeat=n_bounded):
-                if not any(held):
-                    continue
-                keep = np.ones(self.n_linear, dtype=bool)
-                keep[:n_bounded] = ~np.array(held)
-                trial = np.zeros(self.n_linear)
-                trial[keep] = _lstsq(linear[:, keep], target)
-                if np.any(trial[:n_bounded] < 0):
-                    continue
-                rss = float(np.sum((target - linear @ trial) ** 2))
-                if rss < best_rss:
-                    best, best_rss = trial, rss
-            coef = best  # holding every bound gives a feasible point, so best is set
+        coef = None
+        if self._held is not None:
+            coef = self._checked(linear, target, self._held)
+        if coef is None:
+            coef = _lstsq(linear, target)
+            held = np.zeros(self.n_linear, dtype=bool)
+            held[:n_bounded] = coef[:n_bounded] < 0
+            if held.any():
+                # Usually holding the violated bounds is the answer; otherwise try them all.
+                coef = self._checked(linear, target, held)
+                if coef is None:
+                    coef = self._enumerate_bounds(linear, target, n_bounded)
+                    held = np.zeros(self.n_linear, dtype=bool)
+                    held[:n_bounded] = coef[:n_bounded] == 0
+            self._held = held
         resid = target - linear @ coef
         if extra is not None:
             resid = np.append(resid, extra)
         return coef, resid
 
+    def _checked(self, linear, target, held):
+        """The solution with ``held`` at zero if it is the bounded optimum (KKT), else None."""
+        n_bounded = self.n_solar + self.n_gains
+        trial = self._held_solution(linear, target, held)
+        if np.any(trial[:n_bounded] < 0):
+            return None
+        # No held coefficient may lower the residual by leaving its bound.
+        gradient = linear[:, held].T @ (target - linear @ trial)
+        scale = np.linalg.norm(linear[:, held], axis=0) * max(np.linalg.norm(target), 1e-300)
+        return trial if np.all(gradient <= 1e-10 * scale) else None
 
-def _basis_loop(a, c_out0, c_out1, c_power, c_unit, z_fixed0, w_fixed, t_out, d_out, seqs, col_seq, col_w, z_hidden0, out):
-    """One pass over a segment: every modal recursion, and the indoor node's columns."""
+    def _held_solution(self, linear, target, held):
+        trial = np.zeros(self.n_linear)
+        trial[~held] = _lstsq(linear[:, ~held], target)
+        return trial
+
+    def _enumerate_bounds(self, linear, target, n_bounded):
+        best, best_rss = None, math.inf
+        for pattern in itertools.product((False, True), repeat=n_bounded):
+            if not any(pattern):
+                continue
+            held = np.zeros(self.n_linear, dtype=bool)
+            held[:n_bounded] = pattern
+            trial = self._held_solution(linear, target, held)
+            if np.any(trial[:n_bounded] < 0):
+                continue
+            rss = float(np.sum((target - linear @ trial) ** 2))
+            if rss < best_rss:
+                best, best_rss = trial, rss
+        return best  # holding every bound gives a feasible point, so best is set
+
+
+def _basis_loop(a, c_out0, c_out1, c_power, c_unit, z_fixed0, w_fixed, t_out, d_out, seqs, col_seq, col_w, z_hidden0,
+                block_id, row_weight, target, out):
+    """One pass over a segment: every modal recursion, summed into the blocks of ``out``."""
     m = a.size
-    n_rows = out.shape[0]
+    n_rows = block_id.size
     n_unit = seqs.shape[0] - 1
     z_fixed = z_fixed0.copy()
     z_unit = np.zeros((m, max(n_unit, 1)))
     z_hidden = z_hidden0.copy()
     for k in range(n_rows):
-        acc = 0.0
-        for j in range(m):
-            acc += w_fixed[j] * z_fixed[j]
-        out[k, 0] = acc
-        for c in range(col_seq.size):
-            s = col_seq[c]
+        b = block_id[k]
+        if b >= 0:
+            wk = row_weight[k]
             acc = 0.0
-            if s >= 0:
-                for j in range(m):
-                    acc += col_w[c, j] * z_unit[j, s]
-            else:
-                for j in range(m):
-                    acc += col_w[c, j] * z_hidden[j]
-            out[k, 1 + c] = acc
+            for j in range(m):
+                acc += w_fixed[j] * z_fixed[j]
+            out[b, target[0]] += wk * acc
+            for c in range(col_seq.size):
+                s = col_seq[c]
+                acc = 0.0
+                if s >= 0:
+                    for j in range(m):
+                        acc += col_w[c, j] * z_unit[j, s]
+                else:
+                    for j in range(m):
+                        acc += col_w[c, j] * z_hidden[j]
+                out[b, target[1 + c]] += wk * acc
         if k == n_rows - 1:
             break
         for j in range(m):
@@ -280,6 +317,49 @@ try:  # numba compiles the loop; the plain Python loop is the same arithmetic, o
     _basis_kernel = numba.njit(cache=True)(_basis_loop)
 except ImportError:  # pragma: no cover - numba is a declared dependency
     _basis_kernel = _basis_loop
+
+
+def symmetric_modes(s):
+    """
+    Eigenvalues (ascending) and orthonormal eigenvectors of a 1x1 or 2x2 symmetric matrix.
+
+    Parameters
+    ----------
+    s : numpy.ndarray, shape (1, 1) or (2, 2)
+        :math:`C^{-1/2} K C^{-1/2}` of a preset. [s⁻¹]
+
+    Returns
+    -------
+    rates : numpy.ndarray
+        Relaxation rates, ascending. [s⁻¹]
+    v : numpy.ndarray
+        Eigenvectors as columns.
+
+    Raises
+    ------
+    NetworkError
+        A rate that is not finite and positive.
+    """
+    if s.shape[0] == 1:
+        rates, v = s[0], np.ones((1, 1))
+    else:
+        # Closed form of the symmetric 2x2 eigenproblem (numpy.linalg.eigh in the tests).
+        p, q, r = s[0, 0], s[0, 1], s[1, 1]
+        mean = 0.5 * (p + r)
+        half_gap = math.hypot(0.5 * (p - r), q)
+        fast = mean + half_gap
+        # The slow rate from the determinant: mean - half_gap cancels when the modes are far apart.
+        rates = np.array([(p * r - q * q) / fast, fast])
+        if q == 0.0:
+            v = np.eye(2) if p <= r else np.array([[0.0, 1.0], [1.0, 0.0]])
+        else:
+            angle = 0.5 * math.atan2(2 * q, p - r)
+            c, sn = math.cos(angle), math.sin(angle)
+            # (c, sn) belongs to the larger eigenvalue; the slow mode comes first.
+            v = np.array([[-sn, c], [c, sn]])
+    if not (np.all(np.isfinite(rates)) and rates[0] > 0):
+        raise NetworkError("the network has a mode that does not decay")
+    return rates, v
 
 
 def _lstsq(matrix, target):
