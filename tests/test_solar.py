@@ -99,3 +99,35 @@ def test_bad_site_and_model_are_refused():
         solar.facade_irradiance(w, 95.0, 0.0)
     with pytest.raises(InputError, match="unknown transposition"):
         solar.facade_irradiance(w, 0.0, 0.0, model="magic")
+
+
+def test_cached_sun_positions_equal_pvlib_called_directly():
+    # Reference: pvlib.solarposition.get_solarposition (NREL SPA, Reda and Andreas 2004) at the
+    # interval midpoints, called here without thermorc. A second call on the same site and grid
+    # is served from the per-process cache and must give the same numbers, bit for bit, even
+    # after a caller has changed the frame it got back.
+    idx = pd.date_range("1990-01-08", periods=2880, freq="15min", tz="America/New_York")
+    ref = pvlib.solarposition.get_solarposition(idx + pd.Timedelta(minutes=7.5), LAT, LON, altitude=ALT)
+    first = solar.solar_position(idx, LAT, LON, ALT)
+    first.iloc[:, :] = -1.0
+    again = solar.solar_position(idx, LAT, LON, ALT)
+    for pos in (again, solar.solar_position(idx.copy(), LAT, LON, ALT)):
+        assert list(pos.columns) == list(ref.columns) and pos.index.equals(idx)
+        np.testing.assert_array_equal(pos.to_numpy(), ref.to_numpy())
+    # Another site, altitude or grid is another key, never a stale hit.
+    for lat, lon, alt, grid in [(LAT + 1e-9, LON, ALT, idx), (LAT, LON, ALT + 1.0, idx), (LAT, LON, ALT, idx[1:]),
+                                (LAT, LON, ALT, idx.tz_convert("UTC")[:100].union(idx.tz_convert("UTC")[101:200]))]:
+        want = pvlib.solarposition.get_solarposition(solar.midpoints(grid), lat, lon, altitude=alt)
+        np.testing.assert_array_equal(solar.solar_position(grid, lat, lon, alt).to_numpy(), want.to_numpy())
+
+
+def test_facade_arrays_equal_the_table_and_clear_sky_equals_pvlib_location():
+    w, _ = read_weather(TMY3)
+    week = w.loc["1990-03-01":"1990-03-07"]
+    table = solar.facade_irradiance(week.drop(columns=["dni_w_m2", "dhi_w_m2"]), LAT, LON, ALT)
+    arrays = solar.facade_arrays(week["ghi_w_m2"].to_numpy(), week.index, LAT, LON, ALT)
+    for name in table.columns:
+        np.testing.assert_array_equal(arrays[name], table[name].to_numpy())
+    # Reference: pvlib.location.Location.get_clearsky computing its own sun position.
+    ref = pvlib.location.Location(LAT, LON, tz="UTC", altitude=ALT).get_clearsky(solar.midpoints(week.index))
+    np.testing.assert_array_equal(solar.clear_sky_ghi(week.index, LAT, LON, ALT).to_numpy(), ref["ghi"].to_numpy())

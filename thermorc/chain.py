@@ -205,18 +205,22 @@ def vertical_irradiance(frame, site, weather=None):
     numpy.ndarray
         Sum of the plane-of-array irradiance of the four façades. [W m⁻²]
     """
-    from thermorc.solar import facade_irradiance
+    from thermorc.solar import facade_arrays
 
-    source = frame[["ghi_w_m2"]].copy()
+    ghi = frame["ghi_w_m2"].to_numpy(dtype=float)
+    dni = dhi = None
     if weather is not None and {"dni_w_m2", "dhi_w_m2"} <= set(weather.columns):
-        source["dni_w_m2"] = weather["dni_w_m2"].to_numpy()
-        source["dhi_w_m2"] = weather["dhi_w_m2"].to_numpy()
-        if source[["dni_w_m2", "dhi_w_m2"]].isna().any().any():
-            source = source[["ghi_w_m2"]]
-    ghi_ok = source["ghi_w_m2"].notna()
-    filled = source.fillna(0.0)
-    poa = facade_irradiance(filled, site["latitude"], site["longitude"], site.get("altitude_m", 0.0) or 0.0)
-    total = poa[["poa_n_w_m2", "poa_e_w_m2", "poa_s_w_m2", "poa_w_w_m2"]].sum(axis=1).to_numpy()
+        dni = weather["dni_w_m2"].to_numpy(dtype=float)
+        dhi = weather["dhi_w_m2"].to_numpy(dtype=float)
+        if np.isnan(dni).any() or np.isnan(dhi).any():
+            dni = dhi = None
+    ghi_ok = ~np.isnan(ghi)
+    # Holes in GHI are zero for the transposition and NaN again in the sum.
+    poa = facade_arrays(
+        np.where(ghi_ok, ghi, 0.0), frame.index, site["latitude"], site["longitude"], site.get("altitude_m", 0.0) or 0.0,
+        dni=dni, dhi=dhi,
+    )
+    total = poa["poa_n_w_m2"] + poa["poa_e_w_m2"] + poa["poa_s_w_m2"] + poa["poa_w_w_m2"]
     return np.where(ghi_ok, total, np.nan)
 
 

@@ -9,6 +9,7 @@ warns that datasets label intervals differently and solar position depends on it
 from __future__ import annotations
 
 import warnings
+from collections import OrderedDict
 
 import numpy as np
 import pandas as pd
@@ -16,8 +17,8 @@ import pvlib
 
 from thermorc.errors import DataQualityWarning, InputError
 
-__all__ = ["FACADES", "midpoints", "solar_position", "decompose", "facade_irradiance", "clear_sky_ghi",
-           "solar_inputs"]
+__all__ = ["FACADES", "midpoints", "solar_position", "decompose", "facade_irradiance", "facade_arrays",
+           "clear_sky_ghi", "solar_inputs"]
 
 #: Façade name -> (surface tilt [deg], surface azimuth [deg east of north]).
 FACADES = {"s": (90.0, 180.0), "e": (90.0, 90.0), "w": (90.0, 270.0), "n": (90.0, 0.0)}
@@ -59,6 +60,62 @@ def _check_site(latitude, longitude):
         raise InputError(f"longitude {longitude!r} is outside -180..180 degrees", column="longitude")
 
 
+#: Columns of :func:`pvlib.solarposition.get_solarposition`, in its order.
+POSITION_COLUMNS = ("apparent_zenith", "zenith", "apparent_elevation", "elevation", "azimuth", "equation_of_time")
+
+# Sun positions already computed in this process. Homes of a fleet often share a site and a
+# time grid, and the solar position algorithm is the dearest step of preparing a log, so each
+# (site, grid) is computed once. The key is exact: latitude, longitude and altitude as given,
+# and the grid's first instant, step, length and time zone; only uniform grids are kept.
+# Entries are read-only arrays; the budget bounds memory (floats kept, 8 bytes each).
+_SUN_CACHE = OrderedDict()
+_SUN_CACHE_BUDGET = 4_000_000
+
+
+def _grid_key(index):
+    """``(first instant [ns], step [ns], length, tz)`` of a uniform index, else None."""
+    ns = index.as_unit("ns").asi8
+    if ns.size < 2:
+        return None
+    step = int(ns[1] - ns[0])
+    if step <= 0 or not np.all(np.diff(ns) == step):
+        return None
+    return int(ns[0]), step, int(ns.size), str(index.tz)
+
+
+def _sun(index, latitude, longitude, altitude_m):
+    """
+    pvlib's solar position at the interval midpoints, and their day of year, cached per grid.
+
+    Returns a dict of read-only arrays: the :data:`POSITION_COLUMNS`, ``day_of_year`` and
+    ``midpoints`` (the pandas.DatetimeIndex the positions were computed at).
+    """
+    _check_site(latitude, longitude)
+    grid = _grid_key(index)
+    key = None
+    if grid is not None:
+        key = (float(latitude), float(longitude), None if altitude_m is None else float(altitude_m), grid)
+        hit = _SUN_CACHE.get(key)
+        if hit is not None:
+            _SUN_CACHE.move_to_end(key)
+            return hit
+    mid = midpoints(index)
+    pos = pvlib.solarposition.get_solarposition(mid, latitude, longitude, altitude=altitude_m)
+    entry = {name: pos[name].to_numpy(dtype=float, copy=True) for name in POSITION_COLUMNS}
+    entry["day_of_year"] = mid.day_of_year.to_numpy()
+    for value in entry.values():
+        value.setflags(write=False)
+    entry["midpoints"] = mid
+    if key is not None:
+        size = len(index) * (len(POSITION_COLUMNS) + 1)
+        if size <= _SUN_CACHE_BUDGET:
+            _SUN_CACHE[key] = entry
+            while sum(len(e["zenith"]) for e in _SUN_CACHE.values()) * (len(POSITION_COLUMNS) + 1) \
+                    > _SUN_CACHE_BUDGET:
+                _SUN_CACHE.popitem(last=False)
+    return entry
+
+
 def solar_position(index, latitude, longitude, altitude_m=0.0):
     """
     Sun position at the midpoint of each interval.
@@ -77,18 +134,21 @@ def solar_position(index, latitude, longitude, altitude_m=0.0):
     pandas.DataFrame
         pvlib's columns (apparent_zenith, zenith, azimuth ... [deg]) on ``index``.
 
+    Notes
+    -----
+    The positions of a uniform grid are computed once per site and grid in a process and
+    reused (homes of a fleet often share both); the values are pvlib's either way.
+
     References
     ----------
     Reda, I. and Andreas, A. (2004), "Solar position algorithm for solar radiation
     applications", Solar Energy 76(5), 577-589 (NREL SPA, ``method='nrel_numpy'``).
     """
-    _check_site(latitude, longitude)
-    pos = pvlib.solarposition.get_solarposition(midpoints(index), latitude, longitude, altitude=altitude_m)
-    pos.index = index
-    return pos
+    sun = _sun(index, latitude, longitude, altitude_m)
+    return pd.DataFrame({name: sun[name].copy() for name in POSITION_COLUMNS}, index=index)
 
 
-def decompose(ghi, zenith, index, model="erbs"):
+def decompose(ghi, zenith, index, model="erbs", *, day_of_year=None):
     """
     Split global horizontal irradiance into direct normal and diffuse horizontal parts.
 
@@ -101,6 +161,9 @@ def decompose(ghi, zenith, index, model="erbs"):
     index : pandas.DatetimeIndex
         Interval-start labels (for the day of year).
     model : {'erbs', 'disc'}
+    day_of_year : array_like of int, optional
+        Day of year of the interval midpoints, when already known (saves working it out
+        from ``index``).
 
     Returns
     -------
@@ -113,21 +176,28 @@ def decompose(ghi, zenith, index, model="erbs"):
     Maxwell, E. L. (1987), "A quasi-physical model for converting hourly global horizontal to
     direct normal insolation", SERI/TR-215-3087 (DISC).
     """
-    ghi = pd.Series(np.asarray(ghi, dtype=float), index=index)
-    zen = pd.Series(np.asarray(zenith, dtype=float), index=index)
-    mid = midpoints(index)
+    dni, dhi = _decompose(ghi, zenith, index, model, day_of_year)
+    return pd.DataFrame({"dni": dni, "dhi": dhi}, index=index)
+
+
+def _decompose(ghi, zenith, index, model, day_of_year=None):
+    ghi = np.asarray(ghi, dtype=float)
+    zen = np.asarray(zenith, dtype=float)
+    if ghi.shape != (len(index),) or zen.shape != (len(index),):
+        raise ValueError(f"ghi and zenith need one value per time ({len(index)}), not {ghi.shape} and {zen.shape}")
+    doy = midpoints(index).day_of_year.to_numpy() if day_of_year is None else np.asarray(day_of_year)
     if model == "erbs":
-        parts = pvlib.irradiance.erbs(ghi.to_numpy(), zen.to_numpy(), mid.day_of_year.to_numpy())
+        parts = pvlib.irradiance.erbs(ghi, zen, doy)
         dni, dhi = np.asarray(parts["dni"]), np.asarray(parts["dhi"])
     elif model == "disc":
-        parts = pvlib.irradiance.disc(ghi.to_numpy(), zen.to_numpy(), mid.day_of_year.to_numpy())
+        parts = pvlib.irradiance.disc(ghi, zen, doy)
         dni = np.asarray(parts["dni"])
-        dhi = ghi.to_numpy() - dni * np.cos(np.radians(zen.to_numpy()))
+        dhi = ghi - dni * np.cos(np.radians(zen))
     else:
         raise InputError(f"unknown decomposition {model!r} (expected one of {', '.join(DECOMPOSITIONS)})")
-    dni = np.where(np.isnan(ghi.to_numpy()), np.nan, np.nan_to_num(dni))
+    dni = np.where(np.isnan(ghi), np.nan, np.nan_to_num(dni))
     dhi = np.clip(dhi, 0.0, None)
-    return pd.DataFrame({"dni": dni, "dhi": dhi}, index=index)
+    return dni, dhi
 
 
 def facade_irradiance(weather, latitude, longitude, altitude_m=0.0, albedo=0.2, model="isotropic",
@@ -167,36 +237,75 @@ def facade_irradiance(weather, latitude, longitude, altitude_m=0.0, albedo=0.2, 
     if "ghi_w_m2" not in weather:
         raise InputError("weather has no ghi_w_m2 column (expected global horizontal irradiance)",
                          column="ghi_w_m2")
+    both = "dni_w_m2" in weather and "dhi_w_m2" in weather
+    out = facade_arrays(
+        weather["ghi_w_m2"].to_numpy(dtype=float), weather.index, latitude, longitude, altitude_m,
+        dni=weather["dni_w_m2"].to_numpy(dtype=float) if both else None,
+        dhi=weather["dhi_w_m2"].to_numpy(dtype=float) if both else None,
+        albedo=albedo, model=model, decomposition=decomposition,
+    )
+    return pd.DataFrame(out, index=weather.index)
+
+
+def facade_arrays(ghi, index, latitude, longitude, altitude_m=0.0, dni=None, dhi=None, albedo=0.2,
+                  model="isotropic", decomposition="erbs"):
+    """
+    :func:`facade_irradiance` on arrays: the same values, without building a table.
+
+    Parameters
+    ----------
+    ghi : numpy.ndarray
+        Global horizontal irradiance, interval means [W m-2]; NaN where missing.
+    index : pandas.DatetimeIndex
+        Interval-start labels of ``ghi`` (tz-aware).
+    latitude, longitude : float
+        Site [deg north, deg east].
+    altitude_m : float
+        Site elevation [m].
+    dni, dhi : numpy.ndarray, optional
+        Direct normal and diffuse horizontal irradiance [W m-2]; both or neither. Without
+        them, GHI is decomposed.
+    albedo, model, decomposition
+        As for :func:`facade_irradiance`.
+
+    Returns
+    -------
+    dict of numpy.ndarray
+        poa_s_w_m2, poa_e_w_m2, poa_w_w_m2, poa_n_w_m2, poa_h_w_m2 [W m-2]; NaN where ``ghi``
+        is NaN.
+
+    References
+    ----------
+    As for :func:`facade_irradiance`.
+    """
     if model not in TRANSPOSITIONS:
         raise InputError(f"unknown transposition model {model!r} (expected one of {', '.join(TRANSPOSITIONS)})")
     if not (0.0 <= albedo <= 1.0):
         raise InputError(f"albedo {albedo!r} is outside 0..1", column="albedo")
-    index = weather.index
-    pos = solar_position(index, latitude, longitude, altitude_m)
-    ghi = weather["ghi_w_m2"].to_numpy(dtype=float).clip(0.0, None)
-    if "dni_w_m2" in weather and "dhi_w_m2" in weather:
-        dni = weather["dni_w_m2"].to_numpy(dtype=float).clip(0.0, None)
-        dhi = weather["dhi_w_m2"].to_numpy(dtype=float).clip(0.0, None)
+    sun = _sun(index, latitude, longitude, altitude_m)
+    raw = np.asarray(ghi, dtype=float)
+    ghi = raw.clip(0.0, None)
+    if dni is not None and dhi is not None:
+        dni = np.asarray(dni, dtype=float).clip(0.0, None)
+        dhi = np.asarray(dhi, dtype=float).clip(0.0, None)
     else:
-        parts = decompose(ghi, pos["zenith"].to_numpy(), index, decomposition)
-        dni, dhi = parts["dni"].to_numpy(), parts["dhi"].to_numpy()
+        dni, dhi = _decompose(ghi, sun["zenith"], index, decomposition, sun["day_of_year"])
     kwargs = {}
     if model in ("haydavies", "reindl", "perez"):
-        kwargs["dni_extra"] = pvlib.irradiance.get_extra_radiation(midpoints(index)).to_numpy()
+        kwargs["dni_extra"] = pvlib.irradiance.get_extra_radiation(sun["midpoints"]).to_numpy()
     if model == "perez":
-        kwargs["airmass"] = pvlib.atmosphere.get_relative_airmass(pos["apparent_zenith"].to_numpy())
+        kwargs["airmass"] = pvlib.atmosphere.get_relative_airmass(sun["apparent_zenith"])
+    missing = np.isnan(raw)
     out = {}
     for name, (tilt, azimuth) in FACADES.items():
         total = pvlib.irradiance.get_total_irradiance(
-            tilt, azimuth, pos["apparent_zenith"].to_numpy(), pos["azimuth"].to_numpy(), dni, ghi, dhi,
+            tilt, azimuth, sun["apparent_zenith"], sun["azimuth"], dni, ghi, dhi,
             albedo=albedo, model=model, **kwargs,
         )
-        out[f"poa_{name}_w_m2"] = np.nan_to_num(np.asarray(total["poa_global"], dtype=float), nan=0.0)
-    out["poa_h_w_m2"] = ghi
-    frame = pd.DataFrame(out, index=index)
-    missing = np.isnan(weather["ghi_w_m2"].to_numpy(dtype=float))
-    frame.loc[missing, :] = np.nan
-    return frame
+        poa = np.nan_to_num(np.asarray(total["poa_global"], dtype=float), nan=0.0)
+        out[f"poa_{name}_w_m2"] = np.where(missing, np.nan, poa)
+    out["poa_h_w_m2"] = np.where(missing, np.nan, ghi)
+    return out
 
 
 def clear_sky_ghi(index, latitude, longitude, altitude_m=0.0):
@@ -224,7 +333,11 @@ def clear_sky_ghi(index, latitude, longitude, altitude_m=0.0):
     """
     _check_site(latitude, longitude)
     site = pvlib.location.Location(latitude, longitude, tz="UTC", altitude=altitude_m)
-    sky = site.get_clearsky(midpoints(index))
+    # The same call as get_clearsky makes without a position (pvlib.location.Location
+    # .get_solarposition: pressure from the altitude, 12 degC), shared with the façades.
+    sun = _sun(index, latitude, longitude, altitude_m)
+    position = pd.DataFrame({name: sun[name] for name in POSITION_COLUMNS}, index=sun["midpoints"])
+    sky = site.get_clearsky(sun["midpoints"], solar_position=position)
     return pd.Series(sky["ghi"].to_numpy(), index=index, name="ghi_w_m2")
 
 
