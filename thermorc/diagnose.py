@@ -298,40 +298,37 @@ def energy_fit_metrics(measured_w, modelled_w, index, n_params=1):
         )
     per_hour = int(round(per_hour))
 
-    frame = pd.DataFrame(
-        {"y": y, "yhat": yhat, "ok": np.isfinite(y) & np.isfinite(yhat)},
-        index=_local_hour_start_ns(index),
-    )
     # Exact duplicates would inflate the sample count of an hour; count distinct stamps.
-    frame["stamp"] = index.as_unit("ns").asi8
-    frame = frame[~frame["stamp"].duplicated().to_numpy()]
-    grouped = frame.groupby(level=0)
-    n_ok = grouped["ok"].sum()
-    complete = n_ok.index[n_ok.to_numpy() == per_hour]
-    good = frame[frame.index.isin(complete)]
+    _, first = np.unique(index.as_unit("ns").asi8, return_index=True)
+    first.sort()
+    y, yhat = y[first], yhat[first]
+    ok = np.isfinite(y) & np.isfinite(yhat)
+    hours, code = np.unique(_local_hour_start_ns(index)[first], return_inverse=True)
+    complete = np.bincount(code, weights=ok, minlength=hours.size) == per_hour
     to_kwh = step_s / _J_PER_KWH
-    hourly = good.groupby(level=0)[["y", "yhat"]].sum() * to_kwh
+    hour_y = np.bincount(code, weights=np.where(ok, y, 0.0), minlength=hours.size)[complete] * to_kwh
+    hour_yhat = np.bincount(code, weights=np.where(ok, yhat, 0.0), minlength=hours.size)[complete] * to_kwh
 
     result = {"n_params": int(n_params)}
-    result["hourly"] = _g14_block(hourly["y"], hourly["yhat"], n_params, GUIDELINE14["hourly"], 1)
+    result["hourly"] = _g14_block(hour_y, hour_yhat, n_params, GUIDELINE14["hourly"], 1)
 
     # Calendar months of the local clock, with their length in complete hours.
-    hour_stamps = pd.DatetimeIndex(pd.to_datetime(hourly.index.to_numpy(), unit="ns", utc=True))
-    local = hour_stamps.tz_convert(index.tz)
-    months = pd.PeriodIndex(local.tz_localize(None), freq="M") if len(local) else pd.PeriodIndex([], freq="M")
-    monthly = hourly.groupby(months.to_numpy()).agg(["sum", "count"])
-    keep = []
-    for period, count in zip(monthly.index, monthly[("y", "count")]):
+    local = pd.DatetimeIndex(pd.to_datetime(hours[complete], unit="ns", utc=True)).tz_convert(index.tz)
+    month_key = np.asarray(local.year * 12 + local.month - 1, dtype=np.int64)
+    months, month_code, counts = np.unique(month_key, return_index=False, return_inverse=True, return_counts=True)
+    month_y = np.bincount(month_code, weights=hour_y, minlength=months.size)
+    month_yhat = np.bincount(month_code, weights=hour_yhat, minlength=months.size)
+    keep = np.zeros(months.size, dtype=bool)
+    for i, (key, count) in enumerate(zip(months, counts)):
+        period = pd.Period(year=int(key // 12), month=int(key % 12) + 1, freq="M")
         start = pd.Timestamp(period.start_time).tz_localize(index.tz, nonexistent="shift_forward")
         end = pd.Timestamp((period + 1).start_time).tz_localize(index.tz, nonexistent="shift_forward")
         hours_in_month = (end - start).total_seconds() / _HOUR_S
-        keep.append(count >= MONTH_MIN_COVERAGE * hours_in_month)
-    full = monthly[np.asarray(keep, dtype=bool)] if keep else monthly
-    block = _g14_block(full[("y", "sum")], full[("yhat", "sum")], n_params,
-                       GUIDELINE14["monthly"], 2)
-    if block["note"] is not None and len(full) < 2:
+        keep[i] = count >= MONTH_MIN_COVERAGE * hours_in_month
+    block = _g14_block(month_y[keep], month_yhat[keep], n_params, GUIDELINE14["monthly"], 2)
+    if block["note"] is not None and keep.sum() < 2:
         block["note"] = (
-            f"{len(full)} calendar month(s) with at least {MONTH_MIN_COVERAGE:.0%} of hours "
+            f"{int(keep.sum())} calendar month(s) with at least {MONTH_MIN_COVERAGE:.0%} of hours "
             "complete; monthly metrics need two or more (longer data)"
         )
     result["monthly"] = block

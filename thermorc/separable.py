@@ -119,13 +119,8 @@ class ResponseBasis:
         self.row_weight = np.where(used, 1.0 / counts[np.where(used, block_id, 0)], 0.0) if n_blocks else np.zeros(len(data.y))
         y = np.where(np.isfinite(data.y) & used, data.y, 0.0)
         self.y_blocks = np.bincount(block_id[used], weights=(y * self.row_weight)[used], minlength=n_blocks)
-        # Which unit sequence feeds each column (-1: the hidden start's free decay), and the
-        # output column of each kernel column per segment (each has its own hidden start).
-        seq = [0] * self.n_solar + [(1 if self.has_solar else 0) + j for j in range(self.n_gains)]
-        self._col_seq = np.array(seq + ([-1] if self.n_states > 1 else []), dtype=np.int64)
-        lead = list(range(self.n_solar + self.n_gains + 1))
-        self._col_targets = [np.array(lead + ([len(lead) + k] if self.n_states > 1 else []), dtype=np.int64)
-                             for k in range(len(self.segments))]
+        self._n_unit = (1 if self.has_solar else 0) + self.n_gains  # irradiance, then gains levels
+        self._owner = self._segment_of(self.block_id, self.n_blocks)
         self._held = None  # the bounds held at the last solve: usually the answer next time too
         u = data.u
         self._seg_inputs = []
@@ -165,9 +160,16 @@ class ResponseBasis:
     def rows(self, rc):
         """The responses of :meth:`columns` at every row (zero outside the segments)."""
         n = len(self.data.y)
-        return self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n)
+        return self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n, self._segment_of(np.arange(n), n))
 
-    def _run(self, rc, block_id, row_weight, n_blocks):
+    def _segment_of(self, block_id, n_blocks):
+        owner = np.full(n_blocks, -1, dtype=np.int64)
+        for k, seg in enumerate(self.segments):
+            ids = block_id[seg]
+            owner[ids[ids >= 0]] = k
+        return owner
+
+    def _run(self, rc, block_id, row_weight, n_blocks, owner=None):
         k, g_out, caps = preset_matrices(self.model, rc)
         root = np.sqrt(caps)
         rates, v = symmetric_modes(k / np.outer(root, root))
@@ -183,19 +185,24 @@ class ResponseBasis:
             phi1, phi2 = -em1 / x, (x + em1) / x**2
         else:  # a mode too slow for the closed forms' precision
             phi1, phi2, _ = phi_functions(x)
-        # Output weight of each mode for each column: solar onto each node, gains, hidden start.
-        weights = [w0 * beta_node[:, node] for node in range(self.n_solar)]
-        weights += [w0 * beta_node[:, 0]] * self.n_gains
-        if self.n_states > 1:
-            weights.append(w0)  # the hidden state starts at w_inv[:, 1] itself
-        col_w = np.array(weights)
-        out = np.zeros((n_blocks, 1 + self.n_linear))
-        fixed_in = (dt * phi1 * beta_out, dt * phi2 * beta_out, dt * phi1 * beta_node[:, 0], dt * phi1)
+        n_unit = self._n_unit
+        # Block sums of every modal state: the fixed response, one per unit sequence, the
+        # hidden start's free decay. The indoor node is a weighted sum of them.
+        acc = np.zeros((n_blocks, rates.size, n_unit + 2))
+        drive = (dt * phi1 * beta_out, dt * phi2 * beta_out, dt * phi1 * beta_node[:, 0], dt * phi1)
         hidden0 = np.ascontiguousarray(w_inv[:, -1])
-        for k_seg, (seg, (y0, t_out, dt_out, seqs)) in enumerate(zip(self.segments, self._seg_inputs)):
-            target = self._col_targets[k_seg]
-            _basis_kernel(a, *fixed_in, w_inv[:, 0] * y0, w0, t_out, dt_out, seqs, self._col_seq, col_w, hidden0,
-                          block_id[seg], row_weight[seg], target, out)
+        for seg, (y0, t_out, dt_out, seqs) in zip(self.segments, self._seg_inputs):
+            _basis_kernel(a, *drive, w_inv[:, 0] * y0, t_out, dt_out, seqs, hidden0, block_id[seg], row_weight[seg], acc)
+        # Weight of each (mode, state) block sum in each output column but the hidden starts.
+        n_lead = 1 + self.n_solar + self.n_gains
+        weights = np.zeros((n_lead, rates.size, n_unit + 2))
+        weights[0, :, 0] = w0
+        for node in range(self.n_solar):
+            weights[1 + node, :, 1] = w0 * beta_node[:, node]
+        for j in range(self.n_gains):
+            weights[1 + self.n_solar + j, :, 1 + (1 if self.has_solar else 0) + j] = w0 * beta_node[:, 0]
+        out = np.zeros((n_blocks, 1 + self.n_linear))
+        _assemble_kernel(acc, weights, w0, self._owner if owner is None else owner, self.n_states > 1, out)
         return out
 
     def solve_linear(self, fixed, linear, extra=None):
@@ -243,6 +250,49 @@ class ResponseBasis:
             resid = np.append(resid, extra)
         return coef, resid
 
+    def projected_jacobian(self, theta_rc, fixed, linear, coef, step=1e-6):
+        """
+        Jacobian of the projected residual with respect to log R and log C.
+
+        Parameters
+        ----------
+        theta_rc : numpy.ndarray
+            Natural logarithms of the resistances and capacitances.
+        fixed, linear : numpy.ndarray
+            :meth:`columns` at ``theta_rc``.
+        coef : numpy.ndarray
+            :meth:`solve_linear`'s solution there; coefficients held at a bound stay held.
+        step : float
+            Relative forward-difference step for the columns.
+
+        Returns
+        -------
+        numpy.ndarray, shape (n_blocks, len(theta_rc))
+
+        Notes
+        -----
+        With :math:`r = P^\perp(y - f)`, :math:`c = A^+(y - f)` on the free columns,
+        :math:`\partial r = -P^\perp(\partial f + \partial A\, c) - (A^+)^T \partial A^T r`
+        (Golub and Pereyra 1973, the full form). Only the columns are differenced, one model
+        run per parameter, and no further linear solves are needed.
+        """
+        free = coef != 0 if self._held is None else ~self._held
+        a = linear[:, free]
+        c = coef[free]
+        resid = self.y_blocks - fixed - linear @ coef
+        pinv = np.linalg.pinv(a)
+        jac = np.empty((fixed.size, theta_rc.size))
+        for k in range(theta_rc.size):
+            h = step * max(1.0, abs(theta_rc[k]))
+            moved = theta_rc.copy()
+            moved[k] += h
+            f2, lin2 = self.columns(np.exp(moved))
+            d_fixed = (f2 - fixed) / h
+            d_a = (lin2[:, free] - a) / h
+            v = d_fixed + d_a @ c
+            jac[:, k] = -(v - a @ (pinv @ v)) - pinv.T @ (d_a.T @ resid)
+        return jac
+
     def _checked(self, linear, target, held):
         """The solution with ``held`` at zero if it is the bounded optimum (KKT), else None."""
         n_bounded = self.n_solar + self.n_gains
@@ -275,48 +325,60 @@ class ResponseBasis:
         return best  # holding every bound gives a feasible point, so best is set
 
 
-def _basis_loop(a, c_out0, c_out1, c_power, c_unit, z_fixed0, w_fixed, t_out, d_out, seqs, col_seq, col_w, z_hidden0,
-                block_id, row_weight, target, out):
-    """One pass over a segment: every modal recursion, summed into the blocks of ``out``."""
+def _basis_loop(a, c_out0, c_out1, c_power, c_unit, z_fixed0, t_out, d_out, seqs, z_hidden0, block_id, row_weight, acc):
+    """One pass over a segment: every modal recursion, its states summed into their blocks."""
     m = a.size
     n_rows = block_id.size
     n_unit = seqs.shape[0] - 1
-    z_fixed = z_fixed0.copy()
-    z_unit = np.zeros((m, max(n_unit, 1)))
-    z_hidden = z_hidden0.copy()
+    last = n_unit + 1
+    z = np.zeros((m, n_unit + 2))
+    for j in range(m):
+        z[j, 0] = z_fixed0[j]
+        z[j, last] = z_hidden0[j]
     for k in range(n_rows):
         b = block_id[k]
         if b >= 0:
-            wk = row_weight[k]
-            acc = 0.0
+            w = row_weight[k]
             for j in range(m):
-                acc += w_fixed[j] * z_fixed[j]
-            out[b, target[0]] += wk * acc
-            for c in range(col_seq.size):
-                s = col_seq[c]
-                acc = 0.0
-                if s >= 0:
-                    for j in range(m):
-                        acc += col_w[c, j] * z_unit[j, s]
-                else:
-                    for j in range(m):
-                        acc += col_w[c, j] * z_hidden[j]
-                out[b, target[1 + c]] += wk * acc
+                for s in range(n_unit + 2):
+                    acc[b, j, s] += w * z[j, s]
         if k == n_rows - 1:
             break
         for j in range(m):
-            z_fixed[j] = a[j] * z_fixed[j] + c_out0[j] * t_out[k] + c_out1[j] * d_out[k] + c_power[j] * seqs[0, k]
+            aj = a[j]
+            z[j, 0] = aj * z[j, 0] + c_out0[j] * t_out[k] + c_out1[j] * d_out[k] + c_power[j] * seqs[0, k]
+            cu = c_unit[j]
             for s in range(n_unit):
-                z_unit[j, s] = a[j] * z_unit[j, s] + c_unit[j] * seqs[1 + s, k]
-            z_hidden[j] = a[j] * z_hidden[j]
+                z[j, 1 + s] = aj * z[j, 1 + s] + cu * seqs[1 + s, k]
+            z[j, last] = aj * z[j, last]
 
 
-try:  # numba compiles the loop; the plain Python loop is the same arithmetic, only slower.
+def _assemble_loop(acc, weights, w0, owner, has_hidden, out):
+    """Output columns from the block sums; each segment's hidden start has its own column."""
+    n_blocks, m, n_state = acc.shape
+    n_lead = weights.shape[0]
+    for b in range(n_blocks):
+        for c in range(n_lead):
+            total = 0.0
+            for j in range(m):
+                for s in range(n_state):
+                    total += acc[b, j, s] * weights[c, j, s]
+            out[b, c] = total
+        if has_hidden and owner[b] >= 0:
+            total = 0.0
+            for j in range(m):
+                total += acc[b, j, n_state - 1] * w0[j]
+            out[b, n_lead + owner[b]] = total
+
+
+try:  # numba compiles the loops; the plain Python loops are the same arithmetic, only slower.
     import numba
 
     _basis_kernel = numba.njit(cache=True)(_basis_loop)
+    _assemble_kernel = numba.njit(cache=True)(_assemble_loop)
 except ImportError:  # pragma: no cover - numba is a declared dependency
     _basis_kernel = _basis_loop
+    _assemble_kernel = _assemble_loop
 
 
 def symmetric_modes(s):

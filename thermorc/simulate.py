@@ -575,26 +575,13 @@ def hold_setpoint(
         raise InputError(f"heater capacity is {capacity_w!r} W (expected >= 0)")
     ci = list(space.inputs).index(channel)
     si = list(space.states).index(node)
-    method = "foh" if boundary_hold == "foh" else "zoh"
-    ad, b0, b1 = discretise(space.a, space.b, dt, method)
-    if method == "foh":
-        # Heat inputs are interval means: zero-order hold, whatever the boundary hold.
-        _, b0z, _ = discretise(space.a, space.b, dt, "zoh")
-        nb = space.n_boundaries
-        b0 = np.concatenate([b0[:, :nb], b0z[:, nb:]], axis=1)
-        b1 = np.concatenate([b1[:, :nb], np.zeros_like(b1[:, nb:])], axis=1)
     u_free = u.copy()
     u_free[:, ci] = 0.0
     if x0 is None:
         x_start = _setpoint_steady_state(network, space, u_free[0], setpoint[0], si, ci, cap)
     else:
         x_start = _initial_state(network, space, u[0], x0)
-    u_ext = np.vstack([u_free, u_free[-1:]])
-    sp_ext = np.concatenate([setpoint, setpoint[-1:]])
-    heat, short = _heater_loop(
-        ad, b0, b1, u_ext, sp_ext, x_start, si, ci, cap, -np.inf if allow_cooling else 0.0,
-        a_row=space.a[si], b_row=space.b[si],
-    )
+    heat, short = heater_power(space, u_free, setpoint, dt, x_start, si, ci, cap, allow_cooling, boundary_hold)
     u_used = u.copy()
     u_used[:, ci] = heat
     frame = inputs.copy() if isinstance(inputs, pd.DataFrame) else pd.DataFrame(u_used, index=index, columns=space.inputs)
@@ -602,6 +589,52 @@ def hold_setpoint(
     states, means, x_end = run_modes(space, u_used, dts, x_start, _hold_mask(space, boundary_hold))
     msg = "ok" if not np.any(short > 0) else "heater capacity was not enough in some intervals"
     return _result(space, index, u_used, states, means, x_end, frame, shortfall=short, message=msg)
+
+
+def heater_power(space, u_free, setpoint, dt_s, x_start, state_index, channel_index, capacity_w=np.inf,
+                 allow_cooling=False, boundary_hold="foh"):
+    """
+    Array core of :func:`hold_setpoint`: the heater's power and shortfall, nothing else.
+
+    Parameters
+    ----------
+    space : StateSpace
+        Continuous state space.
+    u_free : numpy.ndarray, shape (N, m)
+        Inputs with the heater's channel at zero.
+    setpoint : numpy.ndarray, shape (N,)
+        Setpoint of the controlled state. [°C]
+    dt_s : float
+        Uniform step. [s]
+    x_start : numpy.ndarray
+        State at the first row. [°C]
+    state_index, channel_index : int
+        Controlled state and the heater's input channel.
+    capacity_w : float
+        Output limit. [W]
+    allow_cooling : bool
+        Let the power go negative so the state follows the setpoint exactly.
+    boundary_hold : {'foh', 'zoh'}
+        Hold for boundary temperatures (heat inputs are always interval means).
+
+    Returns
+    -------
+    heat_w, shortfall_w : numpy.ndarray, shape (N,)
+    """
+    method = "foh" if boundary_hold == "foh" else "zoh"
+    ad, b0, b1 = discretise(space.a, space.b, dt_s, method)
+    if method == "foh":
+        # Heat inputs are interval means: zero-order hold, whatever the boundary hold.
+        _, b0z, _ = discretise(space.a, space.b, dt_s, "zoh")
+        nb = space.n_boundaries
+        b0 = np.concatenate([b0[:, :nb], b0z[:, nb:]], axis=1)
+        b1 = np.concatenate([b1[:, :nb], np.zeros_like(b1[:, nb:])], axis=1)
+    u_ext = np.vstack([u_free, u_free[-1:]])
+    sp_ext = np.concatenate([setpoint, setpoint[-1:]])
+    return _heater_loop(
+        ad, b0, b1, u_ext, sp_ext, x_start, state_index, channel_index, capacity_w,
+        -np.inf if allow_cooling else 0.0, a_row=space.a[state_index], b_row=space.b[state_index],
+    )
 
 
 def _setpoint_steady_state(network, space, u_row, setpoint, si, ci, cap):
