@@ -492,3 +492,51 @@ def test_cli_workers_and_scheduler_are_exclusive(tmp_path):
     assert result.stderr.strip() == ("thermorc: error: --workers sets the local pool; a Dask cluster has its own "
                                      "workers (give one of them)")
     assert not out.exists()
+
+
+def test_partition_rows_give_the_single_file_result_without_a_temporary_file(fleet_dir, tmp_path, monkeypatch):
+    """A home in a hive dataset is calibrated from its rows in memory, as if they were a file of their own."""
+    import tempfile
+
+    import pyarrow as pa
+
+    root, _ = fleet_dir
+    folder = root / "dataset" / "home_id=h4"
+    # Reference: the same rows written as an ordinary Parquet log and read through the single-home chain.
+    alone = tmp_path / "h4.parquet"
+    pq.write_table(pq.read_table(folder), alone)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        single = calibrate_files(alone, site=SITE, model="1R1C")
+
+    def no_temporary_files(*args, **kwargs):
+        raise AssertionError("a temporary file was written")
+
+    monkeypatch.setattr(tempfile, "mkstemp", no_temporary_files)
+    row = calibrate_home({"home_id": "h4", "log": str(root / "dataset"), "partition": {"home_id": "h4"}, "site": SITE},
+                         model="1R1C")
+    assert row["status"] == "ok", row["error"]
+    assert row["ua_w_per_k"] == single.heat_loss_coefficient_w_per_k
+    assert row["cv_rmse_pct"] == single.fit["cv_rmse_pct"] and row["n_samples"] == single.fit["n_samples"]
+    # The digest of the rows as read: SHA-256 (hashlib) of the Arrow IPC stream (pyarrow's writer).
+    table = pq.read_table(folder)
+    sink = pa.BufferOutputStream()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    assert row["log_sha256"] == hashlib.sha256(sink.getvalue()).hexdigest()
+
+
+def test_a_bad_cell_in_a_partition_names_the_dataset_and_the_row(tmp_path):
+    import pyarrow as pa
+
+    log, _ = simulate_log(6, days=4)
+    frame = log.reset_index()
+    frame["indoor_c"] = frame["indoor_c"].astype(str)
+    frame.loc[9, "indoor_c"] = "warm"
+    frame["home_id"] = "q1"
+    ds.write_dataset(pa.Table.from_pandas(frame, preserve_index=False), tmp_path / "d", format="parquet",
+                     partitioning=["home_id"], partitioning_flavor="hive")
+    row = calibrate_home({"home_id": "q1", "log": str(tmp_path / "d"), "partition": {"home_id": "q1"}, "site": SITE})
+    # Record 9 is the 11th row when the header counts as row 1 (thermorc.errors).
+    assert row["status"] == "error"
+    assert row["error"] == "d[home_id=q1], row 11, column 'indoor_c': 'warm' is not a number (expected a decimal number)"

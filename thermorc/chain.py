@@ -8,6 +8,7 @@ produced. It adds no algorithm of its own.
 
 from __future__ import annotations
 
+import os
 import warnings
 from dataclasses import dataclass, field
 
@@ -89,6 +90,8 @@ def prepare_log(
     weather_path=None,
     site=None,
     step_s=None,
+    *,
+    table=None,
 ):
     """
     Read a log, put it on a uniform grid, and fill outdoor temperature and irradiance.
@@ -111,12 +114,15 @@ def prepare_log(
         weather file's.
     step_s : float, optional
         Model grid step [s]; default: the log's median spacing (at least 60 s).
+    table : pandas.DataFrame, optional
+        The log's cells already read (see :func:`thermorc.read.read_log`); ``log_path`` then
+        only names the log.
 
     Returns
     -------
     PreparedLog
     """
-    data, meta = read_log(log_path, column_map=column_map, tz=tz, interval=interval)
+    data, meta = read_log(log_path, column_map=column_map, tz=tz, interval=interval, table=table)
     if step_s is None:
         step_s = max(float(meta.get("median_step_s") or 300.0), 60.0)
     aligned = align(data, float(step_s), path=str(log_path))
@@ -246,6 +252,38 @@ def file_digest(path):
     return digest.hexdigest()
 
 
+def table_digest(table):
+    """
+    SHA-256 of a table's cells, for the provenance of a log that was handed over already read.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame or pyarrow.Table
+        The cells (a DataFrame without its index).
+
+    Returns
+    -------
+    str
+        Hex digest of the table in the Apache Arrow IPC streaming format (schema, then the
+        record batches), so equal cells of equal types give equal digests.
+
+    References
+    ----------
+    Apache Arrow, "Columnar Format", section "Serialization and Interprocess Communication
+    (IPC)". NIST FIPS 180-4, "Secure Hash Standard (SHS)," 2015 (SHA-256).
+    """
+    import hashlib
+
+    import pyarrow as pa
+
+    if isinstance(table, pd.DataFrame):
+        table = pa.Table.from_pandas(table, preserve_index=False)
+    sink = pa.BufferOutputStream()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    return hashlib.sha256(sink.getvalue()).hexdigest()
+
+
 def provenance(**paths):
     """
     Version and input hashes for a result file.
@@ -260,8 +298,6 @@ def provenance(**paths):
     dict
         ``{"thermorc_version": ..., "inputs": {name: {"file": basename, "sha256": ...}}}``.
     """
-    import os
-
     from thermorc import __version__
 
     inputs = {}
@@ -283,6 +319,9 @@ def calibrate_files(
     gains="constant",
     step_s=None,
     progress=False,
+    *,
+    table=None,
+    table_sha256=None,
 ):
     """
     Calibrate from files: read, align, add weather and sun, fit, judge against a construction.
@@ -308,6 +347,12 @@ def calibrate_files(
         Model step [s].
     progress : bool
         Show a spinner on stderr while fitting.
+    table : pandas.DataFrame, optional
+        The log's cells already read (see :func:`thermorc.read.read_log`), e.g. one home's
+        rows of a Parquet dataset; ``log_path`` then only names the log in messages and in
+        the provenance record.
+    table_sha256 : str, optional
+        SHA-256 recorded for ``table`` in the provenance; default: :func:`table_digest`.
 
     Returns
     -------
@@ -330,7 +375,8 @@ def calibrate_files(
         # The construction's UA is a prior with the same uncertainty the plausibility check
         # gives it: measured whole-home heat loss often differs from the design value that much.
         ua_prior = (construction_ua(built)["ua_w_per_k"], CONSTRUCTION_UA_REL_UNCERTAINTY)
-    prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site, step_s=step_s)
+    prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site,
+                           step_s=step_s, table=table)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
         quality.require_model(report, model, path=str(log_path))
@@ -356,7 +402,15 @@ def calibrate_files(
         details = plausibility_details(result.heat_loss_coefficient_w_per_k, result.capacitance_j_per_k, ua_se, built)
         result.extras["plausibility"] = details
         result.warnings.extend(details.get("warnings", []))
-    result.extras["provenance"] = provenance(log=log_path, column_map=column_map, weather=weather, construction=construction)
+    if table is None:
+        result.extras["provenance"] = provenance(log=log_path, column_map=column_map, weather=weather,
+                                                 construction=construction)
+    else:
+        result.extras["provenance"] = provenance(column_map=column_map, weather=weather, construction=construction)
+        result.extras["provenance"]["inputs"] = {
+            "log": {"file": os.path.basename(os.fspath(log_path)), "sha256": table_sha256 or table_digest(table)},
+            **result.extras["provenance"]["inputs"],
+        }
     return result
 
 

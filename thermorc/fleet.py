@@ -403,16 +403,23 @@ def _one_line(text, limit=500):
 
 
 def _partition_frame(dataset, partition):
-    """The rows of one home from a Parquet dataset, with the selecting columns dropped."""
+    """
+    The rows of one home from a Parquet dataset, with the selecting columns dropped.
+
+    Returns the rows as a DataFrame (as a Parquet reader gives them, without an index) and
+    their SHA-256 (:func:`thermorc.chain.table_digest` of the rows as read).
+    """
     import pyarrow as pa
     import pyarrow.dataset as ds
+
+    from thermorc.chain import table_digest
 
     folder = dataset
     if os.path.isdir(dataset):
         # A hive layout is read straight from the home's folder, without listing the others.
         hive = os.path.join(dataset, *[f"{k}={v}" for k, v in partition.items()])
         if os.path.isdir(hive):
-            return ds.dataset(hive, format="parquet").to_table().to_pandas(), hive
+            return _rows(ds.dataset(hive, format="parquet").to_table(use_threads=False), table_digest)
         data = ds.dataset(folder, format="parquet", partitioning="hive")
     elif os.path.exists(dataset):
         data = ds.dataset(dataset, format="parquet")
@@ -432,32 +439,37 @@ def _partition_frame(dataset, partition):
             raise InputError(f"partition value {value!r} does not fit the column's type {kind}", path=dataset, column=key) from None
         term = ds.field(key) == scalar
         expr = term if expr is None else expr & term
-    table = data.to_table(filter=expr)
-    frame = table.drop_columns([k for k in partition if k in table.column_names]).to_pandas()
-    return frame, dataset
+    table = data.to_table(filter=expr, use_threads=False)
+    return _rows(table.drop_columns([k for k in partition if k in table.column_names]), table_digest)
 
 
-@contextlib.contextmanager
-def _log_file(home):
-    """A path ``calibrate_files`` can read for this home, and the name to show in messages."""
+def _rows(table, digest):
+    # One worker calibrates one home at a time, so Arrow's own threads would only compete
+    # with the other workers for the same cores.
+    frame = table.to_pandas(use_threads=False)
+    if not frame.index.equals(pd.RangeIndex(len(frame))):
+        # The reader sees the columns only, never an index stored with the pandas metadata.
+        frame = frame.reset_index(drop=True)
+    return frame, digest(table)
+
+
+def _log_input(home):
+    """
+    What :func:`thermorc.chain.calibrate_files` reads for this home.
+
+    Returns ``(log, table, sha256)``: a log file, or for a partition of a dataset the name
+    shown in messages (``DATASET[home_id=123]``), its rows already read and their SHA-256.
+    """
     if not home.partition:
         if os.path.isdir(home.log):
             raise InputError("is a folder (expected a log file, or a partition such as home_id=123 to pick this "
                              "home's rows of a Parquet dataset)", path=home.log)
-        yield home.log, home.log
-        return
-    frame, source = _partition_frame(home.log, home.partition)
+        return home.log, None, None
+    frame, digest = _partition_frame(home.log, home.partition)
     label = f"{home.log}[{'/'.join(f'{k}={v}' for k, v in home.partition.items())}]"
     if len(frame) == 0:
         raise InputError("no rows in this partition", path=label)
-    fd, tmp = tempfile.mkstemp(prefix="thermorc-home-", suffix=".parquet")
-    os.close(fd)
-    try:
-        frame.to_parquet(tmp, index=False)
-        yield tmp, label
-    finally:
-        with contextlib.suppress(FileNotFoundError):
-            os.remove(tmp)
+    return label, frame, digest
 
 
 def _blank_row(home, model):
@@ -560,17 +572,12 @@ def calibrate_home(home, model="auto", gains="constant"):
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            with _log_file(home) as (log_path, label):
-                try:
-                    result = calibrate_files(
-                        log_path, column_map=home.column_map, tz=home.tz, interval=home.interval,
-                        weather=home.weather, site=home.site, construction=home.construction, model=model,
-                        gains=gains,
-                    )
-                except InputError as exc:
-                    if exc.path == log_path and label != log_path:
-                        raise InputError(exc.message, path=label, row=exc.row, column=exc.column) from None
-                    raise
+            log, table, digest = _log_input(home)
+            result = calibrate_files(
+                log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
+                site=home.site, construction=home.construction, model=model, gains=gains, table=table,
+                table_sha256=digest,
+            )
         row = flatten_result(result, home, model)
         data_warns = [_one_line(w.message) for w in caught if issubclass(w.category, ThermorcWarning)]
         data_warns = [w for w in dict.fromkeys(data_warns) if w not in (row["warnings"] or "")]

@@ -729,9 +729,7 @@ def _table_from_file(path, cmap):
             frame = pd.read_parquet(path)
         except Exception as exc:  # noqa: BLE001 - pyarrow raises many types for damaged files
             raise InputError(f"cannot read Parquet ({type(exc).__name__})", path=path) from None
-        if isinstance(frame.index, pd.DatetimeIndex) and "time" not in frame.columns:
-            frame = frame.reset_index(names="time")
-        return frame, "parquet", 2
+        return _parquet_frame(frame)
     if ext in (".xlsx", ".xlsm"):
         if os.path.getsize(path) == 0:
             raise InputError("file is empty (expected a workbook)", path=path)
@@ -747,8 +745,15 @@ def _table_from_file(path, cmap):
     return frame, "csv", skip + 2
 
 
+def _parquet_frame(frame):
+    """A table read from Parquet, its format and the row of record 0 (a time index becomes ``time``)."""
+    if isinstance(frame.index, pd.DatetimeIndex) and "time" not in frame.columns:
+        frame = frame.reset_index(names="time")
+    return frame, "parquet", 2
+
+
 def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplicates=None,
-             ambiguous=None, nonexistent=None):
+             ambiguous=None, nonexistent=None, table=None):
     """
     Read a thermostat or data-logger export into SI columns on a tz-aware index.
 
@@ -777,6 +782,10 @@ def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplic
         The repeated autumn hour of naive local times (default 'infer': file order).
     nonexistent : {'refuse', 'shift_forward'}, optional
         Local times in the skipped spring hour (default 'refuse').
+    table : pandas.DataFrame, optional
+        The log's cells already read, as :func:`pandas.read_parquet` gives them (the rows of
+        one home of a Parquet dataset, say). ``path`` is then not opened: it names the log in
+        messages and metadata, and rows are counted as in a Parquet file (record 0 = row 2).
 
     Returns
     -------
@@ -794,7 +803,7 @@ def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplic
     thermorc.errors.InputError
         With the file, row and column of the first problem found.
     """
-    path = check_file(path)
+    path = check_file(path) if table is None else os.fspath(path)
     cmap = load_column_map(column_map)
     t_opt = dict(cmap.time)
     tz = zone(tz if tz is not None else t_opt.get("tz"), path)
@@ -807,7 +816,7 @@ def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplic
     nonexistent = nonexistent or t_opt.get("nonexistent", "refuse")
     notes = []
 
-    raw, fmt_name, row0 = _table_from_file(path, cmap)
+    raw, fmt_name, row0 = _table_from_file(path, cmap) if table is None else _parquet_frame(table)
     # Blank lines were kept so row numbers match the file; they carry nothing.
     blank = raw.isna().all(axis=1).to_numpy()
     rows = np.arange(len(raw)) + row0
