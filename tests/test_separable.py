@@ -85,7 +85,7 @@ def test_bounded_linear_solve_matches_lsq_linear():
     basis = ResponseBasis.__new__(ResponseBasis)
     basis._held = None  # the bounds held last time are tried first: reuse across trials on purpose
     for trial in range(30):
-        basis.n_solar, basis.n_gains, basis.n_hidden = 2, 1, 2
+        basis.n_solar, basis.n_gains, basis.n_hidden, basis.n_bounded = 2, 1, 2, 3
         basis.n_linear = 5
         linear = rng.normal(size=(60, 5))
         basis.y_blocks = linear @ np.array([-1.0, 2.0, -0.5, 1.0, 3.0]) + rng.normal(0, 0.5, 60)

@@ -106,12 +106,14 @@ class ResponseBasis:
         self.data = data
         self.step_s = float(data.step_s)
         self.has_solar = bool(data.has_solar)
-        self.n_solar = (1 if self.n_states == 1 else 2) if self.has_solar else 0
+        self.n_channels = 1 if self.has_solar else 0  # irradiance sequences (one column of u)
+        self.n_solar = self.n_channels * self.n_states
         self.day = None if day is None else np.asarray(day, dtype=float)
         self.n_gains = 1 if day is None else 2
         self.segments = list(data.segments)
         self.n_hidden = (self.n_states - 1) * len(self.segments)
         self.n_linear = self.n_solar + self.n_gains + self.n_hidden
+        self.n_bounded = self.n_solar + self.n_gains  # apertures and gains are >= 0
         used = block_id >= 0
         counts = np.bincount(block_id[used], minlength=n_blocks).astype(float)
         self.n_blocks = int(n_blocks)
@@ -119,7 +121,7 @@ class ResponseBasis:
         self.row_weight = np.where(used, 1.0 / counts[np.where(used, block_id, 0)], 0.0) if n_blocks else np.zeros(len(data.y))
         y = np.where(np.isfinite(data.y) & used, data.y, 0.0)
         self.y_blocks = np.bincount(block_id[used], weights=(y * self.row_weight)[used], minlength=n_blocks)
-        self._n_unit = (1 if self.has_solar else 0) + self.n_gains  # irradiance, then gains levels
+        self._n_unit = self.n_channels + self.n_gains  # irradiance channels, then gains levels
         self._owner = self._segment_of(self.block_id, self.n_blocks)
         self._held = None  # the bounds held at the last solve: usually the answer next time too
         u = data.u
@@ -128,7 +130,7 @@ class ResponseBasis:
             y = data.y[seg]
             outdoor = u[seg, 0]
             power = u[seg, 1] + u[seg, 3]  # heating and logged gains both enter the indoor air
-            seqs = [power[:-1], u[seg, 2][:-1]] if self.has_solar else [power[:-1]]
+            seqs = [power[:-1]] + ([u[seg, 2][:-1]] if self.has_solar else [])
             if self.day is None:
                 seqs.append(np.ones(len(outdoor) - 1))
             else:
@@ -197,10 +199,11 @@ class ResponseBasis:
         n_lead = 1 + self.n_solar + self.n_gains
         weights = np.zeros((n_lead, rates.size, n_unit + 2))
         weights[0, :, 0] = w0
-        for node in range(self.n_solar):
-            weights[1 + node, :, 1] = w0 * beta_node[:, node]
+        for channel in range(self.n_channels):
+            for node in range(self.n_states):
+                weights[1 + channel * self.n_states + node, :, 1 + channel] = w0 * beta_node[:, node]
         for j in range(self.n_gains):
-            weights[1 + self.n_solar + j, :, 1 + (1 if self.has_solar else 0) + j] = w0 * beta_node[:, 0]
+            weights[1 + self.n_solar + j, :, 1 + self.n_channels + j] = w0 * beta_node[:, 0]
         out = np.zeros((n_blocks, 1 + self.n_linear))
         _assemble_kernel(acc, weights, w0, self._owner if owner is None else owner, self.n_states > 1, out)
         return out
@@ -229,7 +232,7 @@ class ResponseBasis:
         convex quadratic's minimum is the unconstrained minimum on its own active set).
         """
         target = self.y_blocks - fixed
-        n_bounded = self.n_solar + self.n_gains
+        n_bounded = self.n_bounded
         coef = None
         if self._held is not None:
             coef = self._checked(linear, target, self._held)
@@ -295,7 +298,7 @@ class ResponseBasis:
 
     def _checked(self, linear, target, held):
         """The solution with ``held`` at zero if it is the bounded optimum (KKT), else None."""
-        n_bounded = self.n_solar + self.n_gains
+        n_bounded = self.n_bounded
         trial = self._held_solution(linear, target, held)
         if np.any(trial[:n_bounded] < 0):
             return None
