@@ -35,6 +35,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 import time as _time
 import warnings
@@ -45,6 +46,7 @@ import numpy as np
 import pandas as pd
 import scipy.optimize
 import scipy.signal
+from threadpoolctl import threadpool_limits
 
 from thermorc import diagnose
 from thermorc.errors import (
@@ -962,6 +964,18 @@ def _delta_method(layout, theta, cov):
     return base, {k: math.sqrt(max(float(g @ cov @ g), 0.0)) for k, g in grads.items()}
 
 
+def _one_blas_thread(func):
+    """Run ``func`` with BLAS held to one thread: the fit's matrices are far too small to share."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        with threadpool_limits(1, user_api="blas"):
+            return func(*args, **kwargs)
+
+    return wrapper
+
+
+@_one_blas_thread
 def calibrate(
     log,
     model="2R2C",
@@ -1427,6 +1441,7 @@ def predict(result: CalibrationResult, log, x0=None):
     return out
 
 
+@_one_blas_thread
 def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, path=None, models=MODEL_ORDER,
                    ua_prior=None):
     """
