@@ -112,3 +112,17 @@ def test_short_hole_is_filled_but_marked_in_the_gap_mask():
     assert al.gap_mask.iloc[20] and not al.gap_mask.iloc[18]
     assert al.data.notna().all().all()
     assert len(al.segments) == 2
+
+
+def test_grid_across_a_clock_change_is_the_pandas_range():
+    # Reference: pandas.date_range with a fixed 15-minute Timedelta step is absolute time, so
+    # the grid over the spring-forward night of 10 March 2024 in Chicago has no hole and
+    # 92 rows that day (23 h x 4; the clock change itself: US Energy Policy Act of 2005, sec. 110).
+    f = frame(4 * 24 * 3, start="2024-03-09", tz="America/Chicago")
+    al = align(f, 900)
+    ref = pd.date_range("2024-03-09", periods=len(f), freq=pd.Timedelta(minutes=15), tz="America/Chicago")
+    assert al.data.index.equals(ref) and al.data.index.freq == ref.freq
+    assert (al.data.index.normalize() == pd.Timestamp("2024-03-10", tz="America/Chicago")).sum() == 92
+    # Read as instants, the readings come back unchanged on a grid that coincides with them.
+    np.testing.assert_array_equal(al.data["indoor_c"].to_numpy(), f["indoor_c"].to_numpy())
+    assert not al.gap_mask.any() and list(al.observed.columns) == list(f.columns)

@@ -161,22 +161,31 @@ def instants(t_s, values, at_s, max_gap_s):
     numpy.ndarray
         Values at ``at_s``; NaN outside the readings or inside a long hole.
     """
+    return _instants(t_s, values, at_s, (max_gap_s,))[0]
+
+
+def _instants(t_s, values, at_s, max_gaps_s):
+    """:func:`instants` for several longest holes at once (one search of the readings)."""
     ok = ~np.isnan(values)
     ts, vs = t_s[ok], values[ok]
-    out = np.full(at_s.shape, np.nan)
     if ts.size == 0:
-        return out
+        return [np.full(at_s.shape, np.nan) for _ in max_gaps_s]
     right = np.searchsorted(ts, at_s, side="left")
     exact = (right < ts.size) & (ts[np.minimum(right, ts.size - 1)] == at_s)
     left = right - 1
     inside = (left >= 0) & (right < ts.size)
     li, ri = np.clip(left, 0, ts.size - 1), np.clip(right, 0, ts.size - 1)
     span = ts[ri] - ts[li]
-    join = inside & (span <= max_gap_s)
     interp = np.interp(at_s, ts, vs)
-    out[join] = interp[join]
-    out[exact] = vs[np.minimum(right, ts.size - 1)][exact]
-    return out
+    at_reading = vs[np.minimum(right, ts.size - 1)][exact]
+    outs = []
+    for max_gap_s in max_gaps_s:
+        out = np.full(at_s.shape, np.nan)
+        join = inside & (span <= max_gap_s)
+        out[join] = interp[join]
+        out[exact] = at_reading
+        outs.append(out)
+    return outs
 
 
 def _check_frame(frame, path):
@@ -189,6 +198,8 @@ def _check_frame(frame, path):
 
 
 def _sorted_unique(frame, path, notes):
+    if np.all(np.diff(frame.index.asi8) > 0):
+        return frame  # increasing, hence unique: the usual case, told without hashing the times
     if not frame.index.is_monotonic_increasing:
         frame = frame.sort_index(kind="stable")
         notes.append("rows sorted into time order")
@@ -295,19 +306,20 @@ def align(frame, step_s, path=None, *, max_gap_s=None, min_coverage=0.5, remove_
     n = int(np.floor((t_s[-1] - g0) / step_s)) + 1
     grid_s = g0 + step_s * np.arange(n)
     edges = np.concatenate([grid_s, [grid_s[-1] + step_s]])
-    index = pd.DatetimeIndex(pd.to_datetime(t0_ns + np.round(grid_s * 1e9).astype(np.int64), utc=True)) \
-        .tz_convert(frame.index.tz)
-    index = pd.DatetimeIndex(index, freq=pd.Timedelta(seconds=step_s), name=frame.index.name or "time")
+    index = _grid_index(t0_ns + np.round(grid_s * 1e9).astype(np.int64), step_s, frame.index.tz,
+                        frame.index.name or "time")
 
     nxt = np.concatenate([spacing, [input_step_s]])
     dur = np.where(nxt <= max_gap_s, nxt, input_step_s)
     dur = np.minimum(dur, nxt)
     # Durations a reading really covers (a missing reading or two leaves a hole here).
     dur_seen = np.minimum(nxt, 1.5 * input_step_s)
-    heat = frame["heating_w"].to_numpy(dtype=float) if "heating_w" in frame else None
+    columns = list(frame.columns)
+    raw = {col: frame[col].to_numpy(dtype=float) for col in columns}
+    heat = raw.get("heating_w")
     out, filled, spikes, stuck = {}, {}, {}, []
-    for col in frame.columns:
-        v = frame[col].to_numpy(dtype=float)
+    for col in columns:
+        v = raw[col]
         if col in INTERVAL_MEAN_COLUMNS:
             out[col], _ = interval_means(t_s, v, dur, edges, min_coverage)
             _, seen = interval_means(t_s, v, dur_seen, edges, min_coverage)
@@ -324,14 +336,20 @@ def align(frame, step_s, path=None, *, max_gap_s=None, min_coverage=0.5, remove_
                 stuck.append({"column": col, "start": frame.index[a], "end": frame.index[b], "hours": d / 3600})
                 flags.append(f"{col} stuck at {v[a]:g} from {frame.index[a].isoformat()} for "
                              f"{d / 3600:.1f} h while the heating changed")
-        out[col] = instants(t_s, v, grid_s, max_gap_s)
-        filled[col] = ~np.isnan(out[col]) & np.isnan(instants(t_s, v, grid_s, 1.5 * input_step_s))
-    data = pd.DataFrame(out, index=index)[list(frame.columns)]
-    observed = data.notna() & ~pd.DataFrame(filled, index=index)[list(frame.columns)]
-    gap_mask = ~observed.all(axis=1)
-    gap_mask.name = "gap"
-    segments = _segments(index, gap_mask.to_numpy())
-    n_filled = int((data.notna().all(axis=1) & gap_mask).sum())
+        out[col], seen = _instants(t_s, v, grid_s, (max_gap_s, 1.5 * input_step_s))
+        filled[col] = ~np.isnan(out[col]) & np.isnan(seen)
+    # Tables from (columns, rows) stacks: one block each, laid out as pandas lays out a dict of
+    # columns, without converting the column labels again.
+    labels = frame.columns.rename(None)
+    values = np.vstack([out[col] for col in columns]) if columns else np.empty((0, len(index)))
+    have = ~np.isnan(values)
+    seen = have & ~np.vstack([filled[col] for col in columns]) if columns else have
+    data = pd.DataFrame(values.T, index=index, columns=labels, copy=False)
+    observed = pd.DataFrame(seen.T, index=index, columns=labels, copy=False)
+    gap = ~seen.all(axis=0)
+    gap_mask = pd.Series(gap, index=index, name="gap")
+    segments = _segments(index, gap)
+    n_filled = int((have.all(axis=0) & gap).sum())
     if n_filled:
         notes.append(f"{n_filled} grid rows bridged over short holes (values kept, marked in gap_mask)")
     if gap_mask.any():
@@ -342,6 +360,17 @@ def align(frame, step_s, path=None, *, max_gap_s=None, min_coverage=0.5, remove_
     return AlignedData(data=data, gap_mask=gap_mask, segments=segments, step_s=float(step_s),
                        max_gap_s=float(max_gap_s), observed=observed, input_step_s=input_step_s,
                        spikes=spikes, stuck=stuck, notes=notes, flags=flags)
+
+
+def _grid_index(ns, step_s, tz, name):
+    """The grid's DatetimeIndex (``freq`` set) from its instants [ns since the epoch, UTC]."""
+    first = pd.Timestamp(int(ns[0]), unit="ns", tz="UTC").tz_convert(tz)
+    index = pd.date_range(first, periods=ns.size, freq=pd.Timedelta(seconds=step_s), name=name, unit="ns")
+    if np.array_equal(index.asi8, ns):
+        return index  # a regular range: its freq needs no check against the values
+    # A step that is not a whole number of nanoseconds: the rounded instants, checked.
+    index = pd.DatetimeIndex(pd.to_datetime(ns, utc=True)).tz_convert(tz)
+    return pd.DatetimeIndex(index, freq=pd.Timedelta(seconds=step_s), name=name)
 
 
 def _segments(index, gap):
