@@ -46,7 +46,7 @@ import numpy as np
 import pandas as pd
 import scipy.optimize
 import scipy.signal
-from threadpoolctl import threadpool_limits
+from threadpoolctl import ThreadpoolController
 
 from thermorc import diagnose
 from thermorc.errors import (
@@ -964,12 +964,17 @@ def _delta_method(layout, theta, cov):
     return base, {k: math.sqrt(max(float(g @ cov @ g), 0.0)) for k, g in grads.items()}
 
 
+_THREADPOOLS = []  # one controller per process: finding the loaded libraries costs milliseconds
+
+
 def _one_blas_thread(func):
     """Run ``func`` with BLAS held to one thread: the fit's matrices are far too small to share."""
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
-        with threadpool_limits(1, user_api="blas"):
+        if not _THREADPOOLS:
+            _THREADPOOLS.append(ThreadpoolController())
+        with _THREADPOOLS[0].limit(limits=1, user_api="blas"):
             return func(*args, **kwargs)
 
     return wrapper

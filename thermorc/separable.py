@@ -25,7 +25,6 @@ import math
 import numpy as np
 
 from thermorc.errors import NetworkError
-from thermorc.simulate import phi_functions
 
 __all__ = ["ResponseBasis", "preset_matrices", "symmetric_modes"]
 
@@ -125,20 +124,17 @@ class ResponseBasis:
         self._owner = self._segment_of(self.block_id, self.n_blocks)
         self._held = None  # the bounds held at the last solve: usually the answer next time too
         u = data.u
-        self._seg_inputs = []
-        for seg in self.segments:
-            y = data.y[seg]
-            outdoor = u[seg, 0]
-            power = u[seg, 1] + u[seg, 3]  # heating and logged gains both enter the indoor air
-            seqs = [power[:-1]] + ([u[seg, 2][:-1]] if self.has_solar else [])
-            if self.day is None:
-                seqs.append(np.ones(len(outdoor) - 1))
-            else:
-                d = self.day[seg][:-1]
-                seqs += [d, 1.0 - d]
-            self._seg_inputs.append(
-                (float(y[np.isfinite(y)][0]), outdoor[:-1], np.diff(outdoor), np.ascontiguousarray(seqs))
-            )
+        # Inputs over the whole log: one row per stamp; the step from row k uses row k's values.
+        self._outdoor = np.ascontiguousarray(u[:, 0])
+        self._d_outdoor = np.append(np.diff(u[:, 0]), 0.0)
+        seqs = [u[:, 1] + u[:, 3]]  # heating and logged gains both enter the indoor air
+        if self.has_solar:
+            seqs.append(u[:, 2])
+        seqs += [np.ones(len(data.y))] if self.day is None else [self.day, 1.0 - self.day]
+        self._seqs = np.ascontiguousarray(seqs)
+        self._seg_start = np.array([seg.start for seg in self.segments], dtype=np.int64)
+        self._seg_stop = np.array([seg.stop for seg in self.segments], dtype=np.int64)
+        self._y0 = np.array([data.y[seg][np.isfinite(data.y[seg])][0] for seg in self.segments])
 
     def columns(self, rc):
         """
@@ -173,39 +169,15 @@ class ResponseBasis:
 
     def _run(self, rc, block_id, row_weight, n_blocks, owner=None):
         k, g_out, caps = preset_matrices(self.model, rc)
-        root = np.sqrt(caps)
-        rates, v = symmetric_modes(k / np.outer(root, root))
-        w0 = v[0] / root[0]  # indoor row of the mode shapes: x_indoor = w0 @ z
-        w_inv = v.T * root[None, :]  # z = w_inv x
-        beta_out = w_inv @ (g_out / caps)
-        beta_node = w_inv / caps[None, :]  # modal gain of 1 W into each node
-        dt = self.step_s
-        x = rates * dt
-        a = np.exp(-x)
-        em1 = np.expm1(-x)
-        if x.min() > 1e-3:
-            phi1, phi2 = -em1 / x, (x + em1) / x**2
-        else:  # a mode too slow for the closed forms' precision
-            phi1, phi2, _ = phi_functions(x)
-        n_unit = self._n_unit
-        # Block sums of every modal state: the fixed response, one per unit sequence, the
-        # hidden start's free decay. The indoor node is a weighted sum of them.
-        acc = np.zeros((n_blocks, rates.size, n_unit + 2))
-        drive = (dt * phi1 * beta_out, dt * phi2 * beta_out, dt * phi1 * beta_node[:, 0], dt * phi1)
-        hidden0 = np.ascontiguousarray(w_inv[:, -1])
-        for seg, (y0, t_out, dt_out, seqs) in zip(self.segments, self._seg_inputs):
-            _basis_kernel(a, *drive, w_inv[:, 0] * y0, t_out, dt_out, seqs, hidden0, block_id[seg], row_weight[seg], acc)
-        # Weight of each (mode, state) block sum in each output column but the hidden starts.
-        n_lead = 1 + self.n_solar + self.n_gains
-        weights = np.zeros((n_lead, rates.size, n_unit + 2))
-        weights[0, :, 0] = w0
-        for channel in range(self.n_channels):
-            for node in range(self.n_states):
-                weights[1 + channel * self.n_states + node, :, 1 + channel] = w0 * beta_node[:, node]
-        for j in range(self.n_gains):
-            weights[1 + self.n_solar + j, :, 1 + self.n_channels + j] = w0 * beta_node[:, 0]
         out = np.zeros((n_blocks, 1 + self.n_linear))
-        _assemble_kernel(acc, weights, w0, self._owner if owner is None else owner, self.n_states > 1, out)
+        acc = np.zeros((n_blocks, self.n_states, self._n_unit + 2))
+        status = _columns_kernel(
+            k, g_out, caps, self.step_s, self._seg_start, self._seg_stop, self._y0, self._outdoor, self._d_outdoor,
+            self._seqs, block_id, row_weight, self._owner if owner is None else owner, self.n_channels, self.n_gains,
+            acc, out,
+        )
+        if status:
+            raise NetworkError("the network has a mode that does not decay")
         return out
 
     def solve_linear(self, fixed, linear, extra=None):
@@ -328,60 +300,124 @@ class ResponseBasis:
         return best  # holding every bound gives a feasible point, so best is set
 
 
-def _basis_loop(a, c_out0, c_out1, c_power, c_unit, z_fixed0, t_out, d_out, seqs, z_hidden0, block_id, row_weight, acc):
-    """One pass over a segment: every modal recursion, its states summed into their blocks."""
-    m = a.size
-    n_rows = block_id.size
+def _phi12(x):
+    """phi_1 and phi_2 of :func:`thermorc.simulate.phi_functions` for one rate."""
+    if x < 1e-3:
+        return 1 - x / 2 + x * x / 6 - x**3 / 24, 0.5 - x / 6 + x * x / 24 - x**3 / 120
+    em1 = math.expm1(-x)
+    return -em1 / x, (x + em1) / (x * x)
+
+
+def _columns_loop(k, g_out, caps, dt, seg_start, seg_stop, y0, outdoor, d_outdoor, seqs, block_id, row_weight,
+                  owner, n_channels, n_gains, acc, out):
+    """Modes of the preset, every modal recursion summed into blocks, then the columns.
+
+    Returns 0, or 1 when a mode does not decay.
+    """
+    m = caps.size
+    root = np.sqrt(caps)
+    v = np.eye(m)
+    rates = np.empty(m)
+    if m == 1:
+        rates[0] = k[0, 0] / caps[0]
+    else:
+        # Closed form of the symmetric 2x2 eigenproblem of C^-1/2 K C^-1/2 (symmetric_modes).
+        p = k[0, 0] / caps[0]
+        q = k[0, 1] / (root[0] * root[1])
+        r = k[1, 1] / caps[1]
+        half_gap = math.hypot(0.5 * (p - r), q)
+        fast = 0.5 * (p + r) + half_gap
+        rates[0] = (p * r - q * q) / fast
+        rates[1] = fast
+        if q != 0.0:
+            angle = 0.5 * math.atan2(2 * q, p - r)
+            c, sn = math.cos(angle), math.sin(angle)
+            v[0, 0], v[1, 0], v[0, 1], v[1, 1] = -sn, c, c, sn
+        elif p > r:
+            v[0, 0], v[1, 0], v[0, 1], v[1, 1] = 0.0, 1.0, 1.0, 0.0
+    for j in range(m):
+        if not (rates[j] > 0 and math.isfinite(rates[j])):
+            return 1
+    w0 = np.empty(m)
+    w_inv = np.empty((m, m))
+    beta_out = np.zeros(m)
+    beta_node = np.empty((m, m))
+    a = np.empty(m)
+    c_out0 = np.empty(m)
+    c_out1 = np.empty(m)
+    c_power = np.empty(m)
+    c_unit = np.empty(m)
+    for j in range(m):
+        w0[j] = v[0, j] / root[0]
+        for i in range(m):
+            w_inv[j, i] = v[i, j] * root[i]
+            beta_node[j, i] = w_inv[j, i] / caps[i]
+            beta_out[j] += w_inv[j, i] * g_out[i] / caps[i]
+        x = rates[j] * dt
+        a[j] = math.exp(-x)
+        phi1, phi2 = _phi12(x)
+        c_out0[j] = dt * phi1 * beta_out[j]
+        c_out1[j] = dt * phi2 * beta_out[j]
+        c_power[j] = dt * phi1 * beta_node[j, 0]
+        c_unit[j] = dt * phi1
     n_unit = seqs.shape[0] - 1
     last = n_unit + 1
     z = np.zeros((m, n_unit + 2))
-    for j in range(m):
-        z[j, 0] = z_fixed0[j]
-        z[j, last] = z_hidden0[j]
-    for k in range(n_rows):
-        b = block_id[k]
-        if b >= 0:
-            w = row_weight[k]
-            for j in range(m):
-                for s in range(n_unit + 2):
-                    acc[b, j, s] += w * z[j, s]
-        if k == n_rows - 1:
-            break
+    for seg in range(seg_start.size):
         for j in range(m):
-            aj = a[j]
-            z[j, 0] = aj * z[j, 0] + c_out0[j] * t_out[k] + c_out1[j] * d_out[k] + c_power[j] * seqs[0, k]
-            cu = c_unit[j]
-            for s in range(n_unit):
-                z[j, 1 + s] = aj * z[j, 1 + s] + cu * seqs[1 + s, k]
-            z[j, last] = aj * z[j, last]
-
-
-def _assemble_loop(acc, weights, w0, owner, has_hidden, out):
-    """Output columns from the block sums; each segment's hidden start has its own column."""
-    n_blocks, m, n_state = acc.shape
-    n_lead = weights.shape[0]
-    for b in range(n_blocks):
-        for c in range(n_lead):
+            for s in range(n_unit + 2):
+                z[j, s] = 0.0
+            z[j, 0] = w_inv[j, 0] * y0[seg]
+            z[j, last] = w_inv[j, m - 1]
+        stop = seg_stop[seg]
+        for row in range(seg_start[seg], stop):
+            b = block_id[row]
+            if b >= 0:
+                w = row_weight[row]
+                for j in range(m):
+                    for s in range(n_unit + 2):
+                        acc[b, j, s] += w * z[j, s]
+            if row == stop - 1:
+                break
+            for j in range(m):
+                aj = a[j]
+                z[j, 0] = aj * z[j, 0] + c_out0[j] * outdoor[row] + c_out1[j] * d_outdoor[row] + c_power[j] * seqs[0, row]
+                cu = c_unit[j]
+                for s in range(n_unit):
+                    z[j, 1 + s] = aj * z[j, 1 + s] + cu * seqs[1 + s, row]
+                z[j, last] = aj * z[j, last]
+    n_solar = n_channels * m
+    for b in range(acc.shape[0]):
+        total = 0.0
+        for j in range(m):
+            total += w0[j] * acc[b, j, 0]
+        out[b, 0] = total
+        for ch in range(n_channels):
+            for node in range(m):
+                total = 0.0
+                for j in range(m):
+                    total += w0[j] * beta_node[j, node] * acc[b, j, 1 + ch]
+                out[b, 1 + ch * m + node] = total
+        for g in range(n_gains):
             total = 0.0
             for j in range(m):
-                for s in range(n_state):
-                    total += acc[b, j, s] * weights[c, j, s]
-            out[b, c] = total
-        if has_hidden and owner[b] >= 0:
+                total += w0[j] * beta_node[j, 0] * acc[b, j, 1 + n_channels + g]
+            out[b, 1 + n_solar + g] = total
+        if m > 1 and owner[b] >= 0:
             total = 0.0
             for j in range(m):
-                total += acc[b, j, n_state - 1] * w0[j]
-            out[b, n_lead + owner[b]] = total
+                total += w0[j] * acc[b, j, last]
+            out[b, 1 + n_solar + n_gains + owner[b]] = total
+    return 0
 
 
 try:  # numba compiles the loops; the plain Python loops are the same arithmetic, only slower.
     import numba
 
-    _basis_kernel = numba.njit(cache=True)(_basis_loop)
-    _assemble_kernel = numba.njit(cache=True)(_assemble_loop)
+    _phi12 = numba.njit(cache=True)(_phi12)
+    _columns_kernel = numba.njit(cache=True)(_columns_loop)
 except ImportError:  # pragma: no cover - numba is a declared dependency
-    _basis_kernel = _basis_loop
-    _assemble_kernel = _assemble_loop
+    _columns_kernel = _columns_loop
 
 
 def symmetric_modes(s):
