@@ -118,3 +118,18 @@ def test_design_temperature_rank_on_a_known_vector():
     w = pd.DataFrame({"outdoor_c": np.arange(1000.0)[::-1]}, index=idx)
     design = climate.heating_design_temperatures(w)
     assert design["dry_bulb_99_c"] == 9.0 and design["dry_bulb_99_6_c"] == 3.0
+
+
+def test_temperature_figures_equal_pandas_statistics_on_a_log_with_holes():
+    # Reference: pandas Series.min, max, mean and std (ddof=1), which skip NaN, on the aligned table.
+    log = synthetic(9)
+    log.iloc[50:90] = np.nan
+    log.iloc[400:420, log.columns.get_loc("outdoor_c")] = np.nan
+    al = align(log.dropna(how="all"), 900.0)
+    rep = quality.inspect_log(al)
+    d = al.data
+    for col in ("indoor_c", "outdoor_c"):
+        assert rep.temperatures[col] == {"min": d[col].min(), "max": d[col].max(), "mean": d[col].mean()}
+    assert rep.excitation["outdoor_std_k"] == d["outdoor_c"].std()
+    assert rep.excitation["mean_delta_t_k"] == (d["indoor_c"] - d["outdoor_c"]).mean()
+    assert rep.excitation["indoor_range_k"] == d["indoor_c"].max() - d["indoor_c"].min()

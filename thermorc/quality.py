@@ -109,6 +109,11 @@ class QualityReport:
         return "\n".join(lines)
 
 
+def _skipna(reduce, v):
+    """``reduce`` (numpy's nanmin, nanmax, nanmean) of ``v``; NaN, as pandas gives, when all is NaN."""
+    return float(reduce(v)) if not np.isnan(v).all() else float("nan")
+
+
 def _runs(mask):
     change = np.diff(np.concatenate([[0], mask.astype(np.int8), [0]]))
     return np.flatnonzero(change == 1), np.flatnonzero(change == -1)
@@ -161,16 +166,21 @@ def inspect_log(frame_or_aligned, step_s=None, has_weather=False):
     f_start, f_end = _runs(off)
     f_len_s = (f_end - f_start) * step
     long_off = f_len_s >= FREE_FLOAT_S
+    # Column statistics skip NaN as pandas' Series.min, max, mean and std (ddof=1) do, on the
+    # arrays themselves (numpy's nan-functions give the same sums in the same order).
+    columns = {col: d[col].to_numpy(dtype=float) for col in ("indoor_c", "outdoor_c", "setpoint_c") if col in d}
     temps = {}
-    for col in ("indoor_c", "outdoor_c", "setpoint_c"):
-        if col in d and d[col].notna().any():
-            temps[col] = {"min": float(d[col].min()), "max": float(d[col].max()), "mean": float(d[col].mean())}
-    outdoor_std = float(d["outdoor_c"].std()) if "outdoor_c" in d and d["outdoor_c"].notna().sum() > 1 else None
-    delta = float((d["indoor_c"] - d["outdoor_c"]).mean()) if "outdoor_c" in d else float("nan")
+    for col, v in columns.items():
+        if not np.isnan(v).all():
+            temps[col] = {"min": float(np.nanmin(v)), "max": float(np.nanmax(v)), "mean": float(np.nanmean(v))}
+    indoor = columns["indoor_c"]
+    outdoor = columns.get("outdoor_c")
+    outdoor_std = float(np.nanstd(outdoor, ddof=1)) if outdoor is not None and np.sum(~np.isnan(outdoor)) > 1 else None
+    delta = _skipna(np.nanmean, indoor - outdoor) if outdoor is not None else float("nan")
     heat_cv = float(np.std(hv) / np.mean(hv)) if hv.size and np.mean(hv) > 0 else 0.0
     per_day = switches / observed_days if observed_days > 0 else 0.0
     excitation = {"switches_per_day": per_day, "heating_cv": heat_cv, "mean_delta_t_k": delta,
-                  "outdoor_std_k": outdoor_std, "indoor_range_k": float(d["indoor_c"].max() - d["indoor_c"].min())}
+                  "outdoor_std_k": outdoor_std, "indoor_range_k": _skipna(np.nanmax, indoor) - _skipna(np.nanmin, indoor)}
     facts = {
         "observed_days": observed_days, "step_s": step, "free_float": int(long_off.sum()),
         "switches_per_day": per_day, "outdoor_std_k": outdoor_std if outdoor_std is not None else 0.0,
