@@ -991,7 +991,7 @@ def calibrate(
     previous=None,
     energy_metrics=True,
     ua_prior=None,
-    _ftol=FTOL,
+    _screen=False,
 ):
     """
     Calibrate one preset network on a log.
@@ -1054,7 +1054,8 @@ def calibrate(
     _check_identifiable(data, model, path)
     started = _time.perf_counter()
     block = max(1, int(round(BLOCK_S / data.step_s)))
-    layout, sol, observed, tried = _fit_output_error(model, data, gains, previous, block=block, ftol=_ftol)
+    layout, sol, observed, tried = _fit_output_error(model, data, gains, previous, block=block,
+                                                     ftol=SCREEN_FTOL if _screen else FTOL)
     prior_info = None
     if ua_prior is not None and method == "output_error":
         layout, sol, prior_info = _refit_with_ua_prior(layout, sol, data, gains, block, ua_prior, model)
@@ -1065,7 +1066,15 @@ def calibrate(
     span = upper - lower
     notes = []
     noise = {}
-    if method == "output_error":
+    if _screen:
+        # A candidate of calibrate_auto is judged on its held-out RMSE only.
+        cov = np.full((k, k), np.nan)
+        sub_cov = cov
+        cov_note = "not computed (candidate of the model comparison)"
+        if prior_info:
+            prior_info.pop("_data_cov")
+        success, message, nfev = bool(sol.success), str(sol.message), int(sol.nfev)
+    elif method == "output_error":
         # A parameter pinned at a bound is not estimated: leave it out of the covariance (its
         # Jacobian column would make the information matrix singular) and say so.
         at_bound = (theta - lower < 1e-6 * span) | (upper - theta < 1e-6 * span)
@@ -1130,7 +1139,7 @@ def calibrate(
         }
         cov_note = "inverse Hessian of the Kalman-filter log-likelihood"
         success, message, nfev = bool(ml.success), str(ml.message), int(ml.nfev) + int(sol.nfev)
-    if not np.all(np.isfinite(sub_cov)):
+    if not np.all(np.isfinite(sub_cov)) and not _screen:
         notes.append("the parameter covariance could not be computed (singular information matrix)")
     physical = layout.physical(theta)
     for i, p in enumerate(layout.params[: layout.n_physical]):
@@ -1204,7 +1213,7 @@ def calibrate(
             warnings.warn(msg, FitQualityWarning, stacklevel=2)
     resid_series = np.where(observed, data.y - yhat, np.nan)
     try:
-        lb = diagnose.ljung_box(resid_series[observed])
+        lb = {} if _screen else diagnose.ljung_box(resid_series[observed])
     except (ValueError, ZeroDivisionError):
         lb = {}
     taus_h = [derived[f"time_constant_{i + 1}_h"] for i in range(len(net.time_constants_s()))]
@@ -1501,7 +1510,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             res = calibrate(train, model=model, gains=gains, path=path, previous=previous, energy_metrics=False,
-                            ua_prior=ua_prior, _ftol=SCREEN_FTOL)
+                            ua_prior=ua_prior, _screen=True)
         fitted[model] = res
         previous = {**res.parameters, "_ua": res.heat_loss_coefficient_w_per_k, "_tau": res.time_constants_h[0] * 3600}
         resid = res._residuals.to_numpy()
