@@ -540,3 +540,23 @@ def test_a_bad_cell_in_a_partition_names_the_dataset_and_the_row(tmp_path):
     # Record 9 is the 11th row when the header counts as row 1 (thermorc.errors).
     assert row["status"] == "error"
     assert row["error"] == "d[home_id=q1], row 11, column 'indoor_c': 'warm' is not a number (expected a decimal number)"
+
+
+@pytest.mark.parametrize("parts", [1, 2])
+def test_a_home_folder_reads_as_pyarrow_reads_the_dataset(tmp_path, parts):
+    # Reference: pyarrow.parquet.read_table on the home's folder (dataset discovery, which skips
+    # names starting with '.' or '_'), whether the folder holds one file or several.
+    from thermorc.fleet import _partition_frame
+
+    log, _ = simulate_log(7, days=2)
+    folder = tmp_path / "logs" / "home_id=a1"
+    folder.mkdir(parents=True)
+    frame = log.reset_index()
+    for k, rows in enumerate(np.array_split(np.arange(len(frame)), parts)):
+        frame.iloc[rows].to_parquet(folder / f"part-{k}.parquet", index=False)
+    (folder / "_SUCCESS").write_text("")
+    (folder / ".part-0.parquet.crc").write_bytes(b"\x00\x01")
+    got, digest = _partition_frame(str(tmp_path / "logs"), {"home_id": "a1"})
+    ref = pq.read_table(folder)
+    pd.testing.assert_frame_equal(got, ref.to_pandas().reset_index(drop=True), check_exact=True)
+    assert len(got) == len(frame) and len(digest) == 64 and int(digest, 16) >= 0

@@ -419,6 +419,12 @@ def _partition_frame(dataset, partition):
         # A hive layout is read straight from the home's folder, without listing the others.
         hive = os.path.join(dataset, *[f"{k}={v}" for k, v in partition.items()])
         if os.path.isdir(hive):
+            only = _only_file(hive)
+            if only is not None:
+                # One file, as writers usually leave a home: read it without dataset discovery.
+                import pyarrow.parquet as pq
+
+                return _rows(pq.ParquetFile(only).read(use_threads=False), table_digest)
             return _rows(ds.dataset(hive, format="parquet").to_table(use_threads=False), table_digest)
         data = ds.dataset(folder, format="parquet", partitioning="hive")
     elif os.path.exists(dataset):
@@ -441,6 +447,19 @@ def _partition_frame(dataset, partition):
         expr = term if expr is None else expr & term
     table = data.to_table(filter=expr, use_threads=False)
     return _rows(table.drop_columns([k for k in partition if k in table.column_names]), table_digest)
+
+
+def _only_file(folder):
+    """The one data file of a folder that holds no other data file or folder, else None."""
+    found = []
+    with os.scandir(folder) as entries:
+        for entry in entries:
+            if entry.name.startswith(_DATASET_IGNORE_PREFIXES):
+                continue  # skipped by dataset discovery too
+            if not entry.is_file():
+                return None
+            found.append(entry.path)
+    return found[0] if len(found) == 1 else None
 
 
 def _rows(table, digest):
