@@ -322,3 +322,33 @@ def test_canonical_weather_csv_with_site_comments(tmp_path):
     with pytest.raises(InputError, match="missing required column") as exc:
         read_weather(write(tmp_path, "time,outdoor_c\n2024-01-10T00:00Z,1\n", "w2.csv"))
     assert exc.value.column == "ghi_w_m2"
+
+
+@pytest.mark.parametrize("times, tz, row, year", [
+    # Naive local times are judged by their own year, times with an offset by their UTC year:
+    # 2100-12-31 19:00 at UTC-05:00 is 2101-01-01 00:00 UTC.
+    (["1970-01-01 01:00", "1969-12-31 23:30", "1970-01-01 02:00"], "America/New_York", 3, 1969),
+    (["2100-12-31T17:00-05:00", "2100-12-31T18:00-05:00", "2100-12-31T19:00-05:00"], None, 4, 2101),
+])
+def test_a_year_outside_the_plausible_span_is_refused_near_its_edge(tmp_path, times, tz, row, year):
+    # The span 1970-2100 is thermorc's own limit (common practice, thermorc.read.YEAR_MIN/MAX).
+    text = "time,indoor_c,heating_w\n" + "".join(f"{t},20.0,100\n" for t in times)
+    with pytest.raises(InputError) as info:
+        read_log(write(tmp_path, text), tz=tz)
+    assert str(info.value) == f"log.csv, row {row}, column 'time': year {year} is outside 1970-2100 (expected a real logging date)"
+    inside = "time,indoor_c,heating_w\n" + "".join(f"2100-12-31T{h}:00+00:00,20.0,100\n" for h in (21, 22, 23))
+    assert read_log(write(tmp_path, inside, "inside.csv"))[0].index[-1].year == 2100
+
+
+def test_a_table_already_read_gives_what_the_parquet_file_gives(tmp_path):
+    # Reference: the same cells written with pandas.DataFrame.to_parquet and read from the file.
+    idx = pd.date_range("2024-01-10", periods=8, freq="15min", tz="America/Chicago")
+    cells = pd.DataFrame({"time": idx, "indoor_c": np.linspace(19, 21, 8), "heating_w": [0.0, 900] * 4})
+    cells.to_parquet(tmp_path / "log.parquet", index=False)
+    data, meta = read_log(tmp_path / "log.parquet")
+    again, meta2 = read_log("dataset[home_id=7]", table=cells)
+    pd.testing.assert_frame_equal(again, data, check_exact=True)
+    assert meta2["source_format"] == "parquet" and meta2["path"] == "dataset[home_id=7]"
+    cells.loc[3, "heating_w"] = -5.0
+    with pytest.raises(InputError, match=r"^dataset\[home_id=7\], row 5, column 'heating_w': -5 W is negative"):
+        read_log("dataset[home_id=7]", table=cells)

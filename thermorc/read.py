@@ -239,14 +239,20 @@ def parse_times(raw, path, column, row0, tz=None, fmt=None, ambiguous="infer", n
             what = hint or f"cannot read time {show(text.iloc[i])}"
             expect = f"format {fmt!r}" if fmt else "ISO 8601 such as 2024-01-15 13:00 or 2024-01-15T13:00-05:00"
             raise InputError(f"{what} (expected {expect})", path=path, row=row0 + i, column=column)
-    years = parsed.year
-    bad = (years < YEAR_MIN) | (years > YEAR_MAX)
-    if bad.any():
-        i = _first(bad)
-        raise InputError(
-            f"year {years[i]} is outside {YEAR_MIN}-{YEAR_MAX} (expected a real logging date)",
-            path=path, row=row0 + i, column=column,
-        )
+    # A local year lies within a day of the UTC one, so a span that stays a day inside the
+    # limits needs no year of each row.
+    safe_lo, safe_hi = pd.Timestamp(YEAR_MIN, 1, 2), pd.Timestamp(YEAR_MAX, 12, 31)
+    if parsed.tz is not None:
+        safe_lo, safe_hi = safe_lo.tz_localize("UTC"), safe_hi.tz_localize("UTC")
+    if not (parsed.min() >= safe_lo and parsed.max() < safe_hi):
+        years = parsed.year
+        bad = (years < YEAR_MIN) | (years > YEAR_MAX)
+        if bad.any():
+            i = _first(bad)
+            raise InputError(
+                f"year {years[i]} is outside {YEAR_MIN}-{YEAR_MAX} (expected a real logging date)",
+                path=path, row=row0 + i, column=column,
+            )
     parsed = parsed.as_unit("ns")
     if aware:
         if tz is not None:
@@ -898,7 +904,12 @@ def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplic
         raise InputError(f"only {int(ok.sum())} rows have both indoor_c and heating_w (expected at least 3)",
                          path=path)
 
-    data = pd.DataFrame({k: values[k] for k in LOG_COLUMNS if k in values}, index=index)
+    names = [k for k in LOG_COLUMNS if k in values]
+    if all(values[k].dtype == np.float64 for k in names):
+        # One block laid out as pandas lays out a dict of float columns, built in one step.
+        data = pd.DataFrame(np.vstack([values[k] for k in names]).T, index=index, columns=pd.Index(names), copy=False)
+    else:
+        data = pd.DataFrame({k: values[k] for k in names}, index=index)
     data.index.name = "time"
     if interval == "end":
         for col in INTERVAL_MEAN_COLUMNS:
@@ -927,7 +938,7 @@ def read_log(path, column_map=None, tz=None, interval=None, *, sort=None, duplic
 
 def _parse_time_rows(raw, rows, path, column, tz, fmt, ambiguous, nonexistent, notes):
     try:
-        return parse_times(raw.reset_index(drop=True), path, column, 0, tz=tz, fmt=fmt, ambiguous=ambiguous,
+        return parse_times(_positional(raw), path, column, 0, tz=tz, fmt=fmt, ambiguous=ambiguous,
                            nonexistent=nonexistent, notes=notes)
     except InputError as exc:
         raise _relocate(exc, rows) from None
@@ -935,9 +946,17 @@ def _parse_time_rows(raw, rows, path, column, tz, fmt, ambiguous, nonexistent, n
 
 def _parse_rows(raw, rows, path, column, decimal):
     try:
-        return parse_numbers(raw.reset_index(drop=True), path, column, 0, decimal=decimal)
+        return parse_numbers(_positional(raw), path, column, 0, decimal=decimal)
     except InputError as exc:
         raise _relocate(exc, rows) from None
+
+
+def _positional(raw):
+    """``raw`` on the index 0, 1, ... (the parsers count rows from 0)."""
+    index = raw.index
+    if isinstance(index, pd.RangeIndex) and index.start == 0 and index.step == 1:
+        return raw
+    return raw.reset_index(drop=True)
 
 
 def _relocate(exc, rows):
