@@ -199,9 +199,11 @@ class ResponseBasis:
 
         Notes
         -----
-        At most three coefficients carry a bound, so the bounded problem is solved exactly by
-        trying each set of bounds held active and keeping the best feasible solution (a
-        convex quadratic's minimum is the unconstrained minimum on its own active set).
+        At most three coefficients carry a bound. The bounds held at the previous call are
+        tried first and kept when the Karush-Kuhn-Tucker conditions hold (they usually do
+        between neighbouring R and C); otherwise every set of held bounds is tried and the
+        best feasible solution kept (a convex quadratic's minimum is the unconstrained
+        minimum on its own active set), so the answer is always the exact bounded optimum.
         """
         target = self.y_blocks - fixed
         n_bounded = self.n_bounded
@@ -226,7 +228,7 @@ class ResponseBasis:
         return coef, resid
 
     def projected_jacobian(self, theta_rc, fixed, linear, coef, step=1e-6):
-        """
+        r"""
         Jacobian of the projected residual with respect to log R and log C.
 
         Parameters
@@ -251,7 +253,7 @@ class ResponseBasis:
         (Golub and Pereyra 1973, the full form). Only the columns are differenced, one model
         run per parameter, and no further linear solves are needed.
         """
-        free = coef != 0 if self._held is None else ~self._held
+        free = ~self._held  # the face of the bounds that solve_linear found at theta_rc
         a = linear[:, free]
         c = coef[free]
         resid = self.y_blocks - fixed - linear @ coef
