@@ -7,7 +7,8 @@ starts; :func:`calibrate_home` runs the ordinary single-home chain
 (:func:`thermorc.chain.calibrate_files`) for one home and turns whatever happens, good or
 bad, into one flat row; :func:`run_fleet` sends homes to a local process pool
 (:class:`concurrent.futures.ProcessPoolExecutor`) or to an existing Dask distributed
-cluster in bounded batches and streams the rows to Parquet; :func:`summarise` describes the
+cluster through a bounded queue, topped up as rows return, and streams the rows to Parquet
+a batch at a time; :func:`summarise` describes the
 distribution of the results.
 
 Resume decides by content: each row carries an input fingerprint
@@ -30,6 +31,7 @@ from __future__ import annotations
 import contextlib
 import csv
 import io
+import itertools
 import math
 import os
 import shutil
@@ -1124,27 +1126,44 @@ class _LocalPool:
         if self.pool is not None:
             self.pool.shutdown(wait=exc[0] is None, cancel_futures=True)
 
-    def run(self, homes, kwargs, on_row):
+    def stream(self, homes, kwargs, window):
+        """Rows of ``homes`` as they finish, with at most ``window`` homes in flight.
+
+        The queue is topped up as rows come back, so the workers never wait for a batch to
+        be written.
+        """
         import concurrent.futures as cf
         from concurrent.futures.process import BrokenProcessPool
 
-        if self.pool is None:
-            self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=_pool_context(),
-                                               max_tasks_per_child=TASKS_PER_WORKER)
-        futures = {self.pool.submit(calibrate_home, h, **kwargs): h for h in homes}
-        broken = False
-        for fut in cf.as_completed(futures):
-            try:
-                row = fut.result()
-            except BrokenProcessPool as exc:
-                broken = True
-                row = _worker_failed(futures[fut], kwargs, exc)
-            except Exception as exc:  # noqa: BLE001 - e.g. a result that could not be pickled
-                row = _worker_failed(futures[fut], kwargs, exc)
-            on_row(row)
-        if broken:
-            self.pool.shutdown(wait=False, cancel_futures=True)
-            self.pool = None
+        todo = iter(homes)
+        pending = {}
+        while True:
+            if self.pool is None:
+                self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=_pool_context(),
+                                                   max_tasks_per_child=TASKS_PER_WORKER)
+            for home in itertools.islice(todo, max(window - len(pending), 0)):
+                pending[self.pool.submit(calibrate_home, home, **kwargs)] = home
+            if not pending:
+                return
+            done, _ = cf.wait(pending, return_when=cf.FIRST_COMPLETED)
+            broken = False
+            for fut in done:
+                home = pending.pop(fut)
+                try:
+                    row = fut.result()
+                except BrokenProcessPool as exc:
+                    broken = True
+                    row = _worker_failed(home, kwargs, exc)
+                except Exception as exc:  # noqa: BLE001 - e.g. a result that could not be pickled
+                    row = _worker_failed(home, kwargs, exc)
+                yield row
+            if broken:
+                # A dead worker breaks the pool: the homes it held fail, the rest get a new pool.
+                for fut, home in pending.items():
+                    yield _worker_failed(home, kwargs, BrokenProcessPool("the process pool broke"))
+                pending.clear()
+                self.pool.shutdown(wait=False, cancel_futures=True)
+                self.pool = None
 
 
 class _DaskPool:
@@ -1167,18 +1186,29 @@ class _DaskPool:
         if self.client is not None:
             self.client.close()
 
-    def run(self, homes, kwargs, on_row):
+    def stream(self, homes, kwargs, window):
+        """Rows of ``homes`` as they finish, with at most ``window`` homes on the cluster."""
         import distributed
 
-        futures = self.client.map(calibrate_home, homes, pure=False, **kwargs)
-        which = {f.key: h for f, h in zip(futures, homes)}
-        for fut in distributed.as_completed(futures, loop=self.client.loop):
+        todo = iter(homes)
+        which = {}
+        first = list(itertools.islice(todo, window))
+        futures = [self.client.submit(calibrate_home, h, pure=False, **kwargs) for h in first]
+        which.update({f.key: h for f, h in zip(futures, first)})
+        queue = distributed.as_completed(futures, loop=self.client.loop)
+        for fut in queue:
             try:
                 row = fut.result()
             except Exception as exc:  # noqa: BLE001 - a lost worker costs its homes, not the run
                 row = _worker_failed(which[fut.key], kwargs, exc)
-            on_row(row)
+            which.pop(fut.key, None)
             fut.release()
+            yield row
+            home = next(todo, None)
+            if home is not None:
+                nxt = self.client.submit(calibrate_home, home, pure=False, **kwargs)
+                which[nxt.key] = home
+                queue.add(nxt)
 
 
 def _worker_failed(home, kwargs, exc):
@@ -1221,8 +1251,10 @@ def run_fleet(
     gains : {'constant', 'day_night'}
         Model of unlogged internal gains.
     batch_size : int, optional
-        Homes sent out at a time, and rows per row group; default ``max(32, 8 * workers)``.
-        An interrupted run loses at most the batch it was working on.
+        Rows per row group and per journal file; default ``max(32, 8 * workers)``. Up to
+        twice as many homes are in the workers' queue at a time, topped up as rows return,
+        so an interrupted run loses at most the rows not yet written (under a batch) and the
+        homes in flight.
     retry_errors : bool
         Calculate again the homes that ended in error in an earlier run.
     on_start : callable, optional
@@ -1294,25 +1326,32 @@ def _run_locked(homes, out, scheduler, workers, batch_size, retry_errors, kwargs
         with pool:
             if on_start is not None:
                 on_start(len(todo), dict(counts))
-            for seq, first in enumerate(range(0, len(todo), batch_size)):
-                batch = todo[first:first + batch_size]
-                rows = []
+            # Rows are written every batch_size homes, in manifest order within the batch,
+            # while the pool already works on the next ones.
+            order = {h.home_id: i for i, h in enumerate(todo)}
+            rows = []
+            seq = 0
 
-                def collect(row):
-                    row["inputs_sha256"] = fingerprints[row["home_id"]]
-                    rows.append(row)
-                    if on_row is not None:
-                        on_row(row)
-
-                pool.run(batch, kwargs, collect)
-                # Manifest order inside a batch keeps outputs comparable between runs.
-                order = {h.home_id: i for i, h in enumerate(batch)}
+            def flush():
+                nonlocal seq, n_run, n_errors
                 rows.sort(key=lambda r: order[r["home_id"]])
                 table = pa.Table.from_pylist(rows, schema=schema)
                 _write_journal(journal, seq, table)
                 writer.write_table(table)
                 n_run += len(rows)
                 n_errors += sum(r["status"] == "error" for r in rows)
+                rows.clear()
+                seq += 1
+
+            for row in pool.stream(todo, kwargs, window=2 * batch_size):
+                row["inputs_sha256"] = fingerprints[row["home_id"]]
+                rows.append(row)
+                if on_row is not None:
+                    on_row(row)
+                if len(rows) >= batch_size:
+                    flush()
+            if rows:
+                flush()
         writer.close()
         writer = None
         os.replace(tmp, out)
