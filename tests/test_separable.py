@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 import scipy.optimize
 import scipy.signal
-
 from test_estimate import stochastic_log
+
 from thermorc import estimate
 from thermorc.network import PRESETS, Network
-from thermorc.separable import ResponseBasis, symmetric_modes, preset_matrices
+from thermorc.separable import ResponseBasis, preset_matrices, symmetric_modes
 
 RC = {
     "1R1C": [5e-3, 3e7],

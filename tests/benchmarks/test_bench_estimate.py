@@ -12,10 +12,9 @@ import scipy.optimize
 
 from thermorc import estimate
 from thermorc.errors import ThermorcWarning
-from thermorc.network import Network
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-from test_estimate import TRUE_2R2C, stochastic_log  # noqa: E402
+from test_estimate import stochastic_log
 
 pytestmark = pytest.mark.benchmark
 
