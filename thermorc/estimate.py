@@ -530,7 +530,7 @@ def _dlog_ua_dlog(model, rc, i, step=1e-6):
 
 
 def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, prior=None, ftol=FTOL):
-    """Least squares on the open-loop indoor temperature; returns the best of a few starts.
+    """Least squares on the open-loop indoor temperature, from the best-scoring of a few starts.
 
     The linear parameters (apertures, gains, hidden initial states) are solved exactly for
     each trial R and C (:mod:`thermorc.separable`), so the optimiser searches only the
