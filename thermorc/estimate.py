@@ -1252,7 +1252,8 @@ def calibrate(
             },
             "estimator": {
                 "method": method,
-                "solver": "scipy.optimize.least_squares (trf) on log R and log C, the linear parameters solved exactly (separable least squares)" + (
+                "solver": "scipy.optimize.least_squares (trf) on log R and log C, the linear parameters "
+                          "solved exactly (separable least squares)" + (
                     "" if method == "output_error" else ", then scipy.optimize.minimize (L-BFGS-B) on the Kalman likelihood"),
                 "message": message,
                 "success": success,
