@@ -337,6 +337,17 @@ class _Param:
     start: float
 
 
+def _daytime(index):
+    """Rows of the daytime gains level, 07:00-23:00 local time."""
+    hours = index.hour + index.minute / 60.0
+    return np.asarray((hours >= 7) & (hours < 23))
+
+
+def _solar_onto_nodes(aperture_m2, share, n_solar):
+    """Aperture onto the indoor node, then onto the envelope node (two-node presets). [m²]"""
+    return [aperture_m2 * (1 - share), aperture_m2 * share][:n_solar]
+
+
 class _Layout:
     """Maps the optimiser's vector to network parameters, gains and initial states."""
 
@@ -370,8 +381,7 @@ class _Layout:
                 if guess is None:
                     guess = 0.5 * (t0 + data.u[seg.start, 0])
                 self.params.append(_Param(f"x0_{node}_segment{k}", False, *STATE_BOUNDS_C, float(np.clip(guess, -40, 50))))
-        hours = data.index.hour + data.index.minute / 60.0
-        self.day = (hours >= 7) & (hours < 23)
+        self.day = _daytime(data.index)
 
     def _states(self):
         return ("indoor",) if self.model == "1R1C" else ("indoor", "envelope")
@@ -657,16 +667,9 @@ def _full_solution(layout, basis, theta_rc, prior_residual, prior):
 
     # Linear coefficients as the layout's values imply them (the clipping above included).
     values = layout.values(theta)
-    lin_coef = np.empty(basis.n_linear)
-    k = 0
-    if basis.has_solar:
-        a_total = values["solar_aperture_m2"]
-        sh = values.get("solar_to_envelope_share", 0.0)
-        lin_coef[0] = a_total * (1 - sh)
-        if n_solar == 2:
-            lin_coef[1] = a_total * sh
-        k = n_solar
-    lin_coef[k:] = theta[pos:]
+    a_total = values.get("solar_aperture_m2", 0.0)
+    sh = values.get("solar_to_envelope_share", 0.0)
+    lin_coef = np.array(_solar_onto_nodes(a_total, sh, n_solar) + list(theta[pos:]))
     residual = basis.y_blocks - (fixed + linear @ lin_coef)
     jac = np.zeros((residual.size, len(theta)))
     for i in range(n_rc):
@@ -1579,14 +1582,10 @@ def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
         # training simulation exactly (thermorc.separable; the same numbers predict() gives).
         p = result.parameters
         model = result.model
-        hours = data.index.hour + data.index.minute / 60.0
-        day = ((hours >= 7) & (hours < 23)) if result.gains_schedule.get("kind") == "day_night" else None
+        day = _daytime(data.index) if result.gains_schedule.get("kind") == "day_night" else None
         basis = ResponseBasis(model, data, day, np.full(len(data.y), -1), 0)
         rows = basis.rows([p[name] for name in PRESETS[model].parameters])
-        coef = []
-        if basis.has_solar:
-            share = p.get("solar_to_envelope_share", 0.0)
-            coef += [p["solar_aperture_m2"] * (1 - share)] + ([p["solar_aperture_m2"] * share] if basis.n_solar == 2 else [])
+        coef = _solar_onto_nodes(p["solar_aperture_m2"], p.get("solar_to_envelope_share", 0.0), basis.n_solar)
         coef += [p["internal_gains_day_w"], p["internal_gains_night_w"]] if day is not None else [p["internal_gains_w"]]
         states = result.extras["estimator"]["initial_states"]
         coef += [states[f"x0_envelope_segment{k}"] for k in range(basis.n_hidden)]
