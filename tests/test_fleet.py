@@ -560,3 +560,22 @@ def test_a_home_folder_reads_as_pyarrow_reads_the_dataset(tmp_path, parts):
     ref = pq.read_table(folder)
     pd.testing.assert_frame_equal(got, ref.to_pandas().reset_index(drop=True), check_exact=True)
     assert len(got) == len(frame) and len(digest) == 64 and int(digest, 16) >= 0
+
+
+def test_rows_come_back_in_input_order_with_a_bounded_window():
+    # Whatever order the workers finish in, rows leave in input order, and no more than
+    # `window` homes are ever out between the oldest unwritten one and the newest sent.
+    from thermorc.fleet import _InOrder
+
+    rng = np.random.default_rng(3)
+    order = _InOrder(range(40), window=5)
+    out, flying = [], []
+    while True:
+        flying += order.take()
+        if not flying:
+            break
+        assert max(i for i, _ in flying) - order.head < 5
+        i, home = flying.pop(rng.integers(len(flying)))
+        order.done(i, home)
+        out += list(order.ready())
+    assert out == list(range(40))

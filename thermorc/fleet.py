@@ -1127,28 +1127,29 @@ class _LocalPool:
             self.pool.shutdown(wait=exc[0] is None, cancel_futures=True)
 
     def stream(self, homes, kwargs, window):
-        """Rows of ``homes`` as they finish, with at most ``window`` homes in flight.
+        """Rows of ``homes`` in their order, with the next ``window`` homes in the workers' queue.
 
         The queue is topped up as rows come back, so the workers never wait for a batch to
-        be written.
+        be written; a row that finishes early waits (at most ``window`` of them) until the
+        homes before it are done.
         """
         import concurrent.futures as cf
         from concurrent.futures.process import BrokenProcessPool
 
-        todo = iter(homes)
+        order = _InOrder(homes, window)
         pending = {}
         while True:
             if self.pool is None:
                 self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=_pool_context(),
                                                    max_tasks_per_child=TASKS_PER_WORKER)
-            for home in itertools.islice(todo, max(window - len(pending), 0)):
-                pending[self.pool.submit(calibrate_home, home, **kwargs)] = home
+            for i, home in order.take():
+                pending[self.pool.submit(calibrate_home, home, **kwargs)] = (i, home)
             if not pending:
                 return
             done, _ = cf.wait(pending, return_when=cf.FIRST_COMPLETED)
             broken = False
             for fut in done:
-                home = pending.pop(fut)
+                i, home = pending.pop(fut)
                 try:
                     row = fut.result()
                 except BrokenProcessPool as exc:
@@ -1156,15 +1157,45 @@ class _LocalPool:
                     row = _worker_failed(home, kwargs, exc)
                 except Exception as exc:  # noqa: BLE001 - e.g. a result that could not be pickled
                     row = _worker_failed(home, kwargs, exc)
-                yield row
+                order.done(i, row)
             if broken:
                 # A dead worker breaks the pool: the homes it held fail, the rest get a new pool.
-                for fut, home in pending.items():
-                    yield _worker_failed(home, kwargs, BrokenProcessPool("the process pool broke"))
+                for fut, (i, home) in pending.items():
+                    order.done(i, _worker_failed(home, kwargs, BrokenProcessPool("the process pool broke")))
                 pending.clear()
                 self.pool.shutdown(wait=False, cancel_futures=True)
                 self.pool = None
+            yield from order.ready()
 
+
+class _InOrder:
+    """Hands out homes and gives back their rows in input order.
+
+    At most ``window`` homes are out between the oldest one whose row is not yet given back
+    and the newest one handed out, which bounds both the workers' queue and the rows held.
+    """
+
+    def __init__(self, homes, window):
+        self.todo = enumerate(homes)
+        self.window = max(int(window), 1)
+        self.next = 0  # index of the next home to hand out
+        self.head = 0  # index of the next row to give back
+        self.finished = {}
+
+    def take(self):
+        """Homes, as ``(index, home)``, that may go out now."""
+        out = list(itertools.islice(self.todo, max(self.head + self.window - self.next, 0)))
+        self.next += len(out)
+        return out
+
+    def done(self, index, row):
+        self.finished[index] = row
+
+    def ready(self):
+        """Rows whose homes and all homes before them are done."""
+        while self.head in self.finished:
+            yield self.finished.pop(self.head)
+            self.head += 1
 
 class _DaskPool:
     """An existing Dask distributed cluster, reached through :class:`distributed.Client`."""
@@ -1187,28 +1218,30 @@ class _DaskPool:
             self.client.close()
 
     def stream(self, homes, kwargs, window):
-        """Rows of ``homes`` as they finish, with at most ``window`` homes on the cluster."""
+        """Rows of ``homes`` in their order, with the next ``window`` homes on the cluster."""
         import distributed
 
-        todo = iter(homes)
+        order = _InOrder(homes, window)
         which = {}
-        first = list(itertools.islice(todo, window))
-        futures = [self.client.submit(calibrate_home, h, pure=False, **kwargs) for h in first]
-        which.update({f.key: h for f, h in zip(futures, first)})
-        queue = distributed.as_completed(futures, loop=self.client.loop)
+        queue = distributed.as_completed(loop=self.client.loop)
+
+        def submit():
+            for i, home in order.take():
+                fut = self.client.submit(calibrate_home, home, pure=False, **kwargs)
+                which[fut.key] = (i, home)
+                queue.add(fut)
+
+        submit()
         for fut in queue:
+            i, home = which.pop(fut.key)
             try:
                 row = fut.result()
             except Exception as exc:  # noqa: BLE001 - a lost worker costs its homes, not the run
-                row = _worker_failed(which[fut.key], kwargs, exc)
-            which.pop(fut.key, None)
+                row = _worker_failed(home, kwargs, exc)
             fut.release()
-            yield row
-            home = next(todo, None)
-            if home is not None:
-                nxt = self.client.submit(calibrate_home, home, pure=False, **kwargs)
-                which[nxt.key] = home
-                queue.add(nxt)
+            order.done(i, row)
+            yield from order.ready()
+            submit()
 
 
 def _worker_failed(home, kwargs, exc):
@@ -1326,15 +1359,13 @@ def _run_locked(homes, out, scheduler, workers, batch_size, retry_errors, kwargs
         with pool:
             if on_start is not None:
                 on_start(len(todo), dict(counts))
-            # Rows are written every batch_size homes, in manifest order within the batch,
-            # while the pool already works on the next ones.
-            order = {h.home_id: i for i, h in enumerate(todo)}
+            # Rows are written every batch_size homes, in manifest order, while the pool
+            # already works on the next ones.
             rows = []
             seq = 0
 
             def flush():
                 nonlocal seq, n_run, n_errors
-                rows.sort(key=lambda r: order[r["home_id"]])
                 table = pa.Table.from_pylist(rows, schema=schema)
                 _write_journal(journal, seq, table)
                 writer.write_table(table)
