@@ -205,3 +205,60 @@ def test_a_fit_past_its_time_limit_stops_with_a_clear_message(monkeypatch):
     log, _, _ = stochastic_log(seed=1, days=6)
     with pytest.raises(InputError, match="did not finish within"):
         estimate.calibrate(log, model="2R2C")
+
+
+def ground_log(seed, share=0.3, ground_c=8.0, days=21, step_s=900.0):
+    """A log from a 2R2C that loses ``share`` of its heat to a ground at ``ground_c``.
+
+    Night setbacks and a heater that follows the outdoor temperature, so the indoor
+    temperature moves and the ground part is seen; 0.05 K white measurement noise.
+    """
+    from thermorc.network import with_ground
+
+    rng = np.random.default_rng(seed)
+    net = with_ground(Network.from_preset("2R2C", TRUE_2R2C), share)
+    index = pd.date_range("2025-01-01", periods=int(days * 86400 / step_s), freq=pd.Timedelta(seconds=step_s), tz="UTC")
+    n = len(index)
+    hours = np.arange(n) * step_s / 3600
+    outdoor = 2 + 5 * np.sin(2 * np.pi * (hours - 15) / 24) + np.cumsum(rng.normal(0, 0.1, n))
+    ghi = np.clip(500 * np.sin(2 * np.pi * (hours % 24 - 7) / 20), 0, None)
+    heat = np.where(hours % 24 < 17, 200.0 * (21 - outdoor), 0.0) * rng.uniform(0.6, 1.4, n)
+    inputs = pd.DataFrame({"outdoor_c": outdoor, "heating_w": heat, "solar_w_m2": ghi, "internal_w": 300.0,
+                           "ground_c": ground_c}, index=index)
+    sim = simulate(net, inputs, x0=[19.0, 14.0], interval_means=False)
+    y = sim.temperatures_c["indoor"].to_numpy() + rng.normal(0, 0.05, n)
+    log = pd.DataFrame({"indoor_c": y, "heating_w": heat, "outdoor_c": outdoor, "ghi_w_m2": ghi}, index=index)
+    return log, net
+
+
+def test_a_given_ground_path_recovers_the_total_heat_loss_and_its_split():
+    # Data from a known network with 30 % of its loss to a ground at 8 C (simulate-and-fit).
+    # Given the ground temperature and share, the fit returns the total UA and the split; the
+    # result rebuilds the same two-boundary network and predicts what the fit modelled.
+    from thermorc.result import CalibrationResult
+
+    log, net = ground_log(seed=4)
+    truth = net.heat_loss_coefficient_w_per_k()
+    data = estimate.calibration_data(log, ground_c=8.0, ground_share=0.3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(data, model="2R2C")
+        plain = estimate.calibrate(log, model="2R2C")
+    assert res.heat_loss_coefficient_w_per_k == pytest.approx(truth["total"], rel=0.02)
+    assert res.ground["ua_ground_w_per_k"] == pytest.approx(truth["ground_c"], rel=0.02)
+    assert res.ground["ua_outdoor_w_per_k"] + res.ground["ua_ground_w_per_k"] == pytest.approx(res.heat_loss_coefficient_w_per_k)
+    assert res.parameters["internal_gains_w"] == pytest.approx(300.0, abs=60.0)
+    # Outdoor-only fit: the ground loss partly looks like smaller gains (docs/calibration.md).
+    assert plain.parameters["internal_gains_w"] < res.parameters["internal_gains_w"] - 100.0
+    again = CalibrationResult.from_dict(res.to_dict())
+    assert again.ground == res.ground and again.network().boundaries == ("outdoor_c", "ground_c")
+    pred = estimate.predict(again, log)["indoor_c"].to_numpy()
+    np.testing.assert_allclose(pred, res._modelled.to_numpy(), atol=1e-6)
+
+
+def test_a_ground_temperature_without_its_share_is_refused():
+    log, _ = ground_log(seed=5, days=3)
+    with pytest.raises(InputError, match="needs ground_share"):
+        estimate.calibration_data(log, ground_c=8.0)
+    with pytest.raises(InputError, match="outside 0..0.9"):
+        estimate.calibration_data(log, ground_c=8.0, ground_share=0.95)

@@ -46,14 +46,14 @@ def fitted():
             result = estimate.calibrate_auto(data)
         pred = estimate.predict(result, log)["indoor_c"].to_numpy()
         err = log["indoor_c"].to_numpy()[n_fit:] - pred[n_fit:]
-        out[name] = (result, truth, float(np.sqrt(np.mean(err**2))))
+        out[name] = (result, truth, float(np.sqrt(np.mean(err**2))), log)
     return out
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("name", list(CASES))
 def test_heat_loss_coefficient_within_5_percent_of_the_fine_model(fitted, name):
-    result, truth, _ = fitted[name]
+    result, truth, _, _ = fitted[name]
     low = 0.95 * truth["heat_loss_outdoor_w_per_k"]
     high = 1.05 * truth["heat_loss_coefficient_w_per_k"]
     assert low <= result.heat_loss_coefficient_w_per_k <= high
@@ -62,7 +62,7 @@ def test_heat_loss_coefficient_within_5_percent_of_the_fine_model(fitted, name):
 @pytest.mark.slow
 @pytest.mark.parametrize("name", list(CASES))
 def test_dominant_time_constant_against_the_relevant_mode(fitted, name):
-    result, truth, _ = fitted[name]
+    result, truth, _, _ = fitted[name]
     tolerance = CASES[name][0]
     assert result.time_constants_h[0] == pytest.approx(truth["time_constant_relevant_h"], rel=tolerance)
 
@@ -70,5 +70,22 @@ def test_dominant_time_constant_against_the_relevant_mode(fitted, name):
 @pytest.mark.slow
 @pytest.mark.parametrize("name", list(CASES))
 def test_open_loop_prediction_of_the_next_two_weeks(fitted, name):
-    _, _, rmse = fitted[name]
+    _, _, rmse, _ = fitted[name]
     assert rmse <= CASES[name][1]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["light", "well_insulated"])
+def test_a_given_ground_temperature_gives_the_total_heat_loss_coefficient(fitted, name):
+    # With the fine model's ground temperature and the share of its exact steady-state loss
+    # that goes to the ground (what a construction's ground-floor U A gives an auditor), UA is
+    # the fine model's total within +-5 %, not somewhere between outdoor-only and total.
+    _, truth, _, log = fitted[name]
+    share = truth["heat_loss_ground_w_per_k"] / truth["heat_loss_coefficient_w_per_k"]
+    assert share > 0.05
+    data = estimate.calibration_data(log.iloc[: 28 * 288], solar_column="solar_vertical_w_m2",
+                                     ground_c=synthetic.fine_home(name).ground_c, ground_share=share)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        result = estimate.calibrate_auto(data)
+    assert result.heat_loss_coefficient_w_per_k == pytest.approx(truth["heat_loss_coefficient_w_per_k"], rel=0.05)

@@ -1,6 +1,7 @@
 """RC network core: matrices, reduction of massless nodes, heat loss coefficients, modes."""
 
 import numpy as np
+import pandas as pd
 import pytest
 from hypothesis import given, settings, strategies as st
 
@@ -185,3 +186,31 @@ def test_extreme_stiffness_is_reported_as_precision_loss():
         _warnings.simplefilter("error", PrecisionWarning)
         Network.from_preset("2R2C", r_indoor_envelope_k_per_w=1e-3, r_envelope_outdoor_k_per_w=5e-3,
                             c_indoor_j_per_k=1e5, c_envelope_j_per_k=1e9).time_constants_s()
+
+
+def test_ground_share_is_one_equivalent_boundary_temperature():
+    # In a linear network g(1-f)(To - T) + g f (Tg - T) = g (Teq - T) with
+    # Teq = (1-f) To + f Tg (superposition; analytic), so leading a share f of every outdoor
+    # conductance to a ground must give the same temperatures as the whole network driven by
+    # Teq, and split the heat loss coefficient f : 1-f.
+    from thermorc.network import with_ground
+    from thermorc.simulate import simulate
+
+    base = Network.from_preset("3R2C", r_indoor_envelope_k_per_w=0.001, r_envelope_outdoor_k_per_w=0.004,
+                               r_indoor_outdoor_k_per_w=0.02, c_indoor_j_per_k=2e6, c_envelope_j_per_k=2e7)
+    net = with_ground(base, 0.3)
+    assert net.boundaries == ("outdoor_c", "ground_c")
+    total = base.heat_loss_coefficient_w_per_k()["total"]
+    h = net.heat_loss_coefficient_w_per_k()
+    assert h["total"] == pytest.approx(total, rel=1e-12)
+    assert h["ground_c"] == pytest.approx(0.3 * total, rel=1e-12)
+    index = pd.date_range("2025-01-01", periods=3 * 96, freq="15min", tz="UTC")
+    hours = np.arange(len(index)) / 4
+    outdoor = 3 + 6 * np.sin(2 * np.pi * hours / 24)
+    inputs = pd.DataFrame({"outdoor_c": outdoor, "heating_w": np.where(hours % 24 < 16, 3000.0, 0.0),
+                           "solar_w_m2": 0.0, "internal_w": 200.0, "ground_c": 9.0}, index=index)
+    split = simulate(net, inputs, x0=[20.0, 12.0]).temperatures_c
+    equivalent = simulate(base, inputs.assign(outdoor_c=0.7 * outdoor + 0.3 * 9.0), x0=[20.0, 12.0]).temperatures_c
+    np.testing.assert_allclose(split.to_numpy(), equivalent.to_numpy(), atol=1e-9)
+    with pytest.raises(NetworkError, match="ground share"):
+        with_ground(base, 1.0)

@@ -322,6 +322,8 @@ def calibrate_files(
     *,
     table=None,
     table_sha256=None,
+    ground_c=None,
+    ground_share=None,
 ):
     """
     Calibrate from files: read, align, add weather and sun, fit, judge against a construction.
@@ -353,6 +355,13 @@ def calibrate_files(
         the provenance record.
     table_sha256 : str, optional
         SHA-256 recorded for ``table`` in the provenance; default: :func:`table_digest`.
+    ground_c : float, optional
+        Constant ground temperature [°C] under floors on the ground (e.g. the annual mean
+        outdoor temperature, common practice). The models then lose a share of their heat
+        to it, and UA is the total to outdoor and ground (docs/calibration.md).
+    ground_share : float, optional
+        That share of the heat loss coefficient; default with ``ground_c``: the
+        construction's ``ground_floor`` U A over its whole UA.
 
     Returns
     -------
@@ -375,14 +384,29 @@ def calibrate_files(
         # The construction's UA is a prior with the same uncertainty the plausibility check
         # gives it: measured whole-home heat loss often differs from the design value that much.
         ua_prior = (construction_ua(built)["ua_w_per_k"], CONSTRUCTION_UA_REL_UNCERTAINTY)
+    share_note = None
+    if ground_c is not None and ground_share is None:
+        if built is None:
+            raise InputError("--ground-c needs the share of the heat loss that goes to the ground: give "
+                             "--ground-share, or a --construction with a ground_floor element", column="ground_share")
+        ua = construction_ua(built)
+        if ua["ground_ua_w_per_k"] <= 0:
+            raise InputError("has no ground_floor element, so it gives no ground share for --ground-c (give "
+                             "--ground-share, or mark the floor on the ground as kind = \"ground_floor\")",
+                             path=str(construction))
+        ground_share = ua["ground_ua_w_per_k"] / ua["ua_w_per_k"]
+        share_note = (f"ground share {ground_share:.3f} = the construction's ground-floor U A "
+                      f"{ua['ground_ua_w_per_k']:.1f} W/K over its UA {ua['ua_w_per_k']:.1f} W/K")
+    estimate._ground_path(ground_c, ground_share)  # checked before the log is read
     prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site,
                            step_s=step_s, table=table)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
         quality.require_model(report, model, path=str(log_path))
     solar = SOLAR_COLUMN if SOLAR_COLUMN in prepared.data.columns else "ghi_w_m2"
-    data = estimate.calibration_data(prepared.aligned, solar_column=solar, path=str(log_path))
-    data.notes.extend(prepared.notes)
+    data = estimate.calibration_data(prepared.aligned, solar_column=solar, path=str(log_path), ground_c=ground_c,
+                                     ground_share=ground_share)
+    data.notes.extend(prepared.notes + ([share_note] if share_note else []))
     spinner = contextlib.nullcontext()
     if progress:
         from rich.console import Console

@@ -99,6 +99,7 @@ ELEMENT_KINDS = {
     "external_wall": ("horizontal", True),
     "roof": ("upward", True),
     "floor": ("downward", True),
+    "ground_floor": ("downward", True),
     "window": ("horizontal", True),
     "internal_mass": ("horizontal", False),
 }
@@ -1104,7 +1105,8 @@ def construction_ua(construction):
     dict
         ``transmission_ua_w_per_k`` (sum of U A over external elements),
         ``windows_ua_w_per_k``, ``opaque_ua_w_per_k``, ``air_leakage_w_per_k`` and
-        ``ua_w_per_k`` (their total). [W K-1]
+        ``ua_w_per_k`` (their total), and ``ground_ua_w_per_k`` (the part of the opaque UA
+        through floors on the ground, kind ``ground_floor``). [W K-1]
 
     References
     ----------
@@ -1113,8 +1115,10 @@ def construction_ua(construction):
     """
     windows = sum(_element_u(e) * e.area_m2 for e in construction.elements if e.kind == "window")
     opaque = sum(_element_u(e) * e.area_m2 for e in construction.elements if e.external and e.kind != "window")
+    ground = sum(_element_u(e) * e.area_m2 for e in construction.elements if e.kind == "ground_floor")
     leak = float(air_leakage_conductance(construction.air_changes_per_h, construction.volume_m3))
     return {
+        "ground_ua_w_per_k": float(ground),
         "opaque_ua_w_per_k": float(opaque),
         "windows_ua_w_per_k": float(windows),
         "transmission_ua_w_per_k": float(opaque + windows),

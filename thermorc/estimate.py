@@ -120,6 +120,14 @@ class CalibrationData:
         Whether irradiance was given (otherwise the aperture is not fitted).
     notes : list of str
         What was decided while preparing the arrays.
+    solar_column : str
+        Name of the irradiance column.
+    ground : dict
+        Empty, or ``temperature_c`` [°C] and ``share`` of a ground path given by the user;
+        ``u[:, 0]`` then holds the equivalent boundary temperature
+        :math:`(1 - f) T_o + f T_g` (:func:`thermorc.network.with_ground`).
+    outdoor_c : numpy.ndarray or None
+        The outdoor temperature itself when ``u[:, 0]`` holds the equivalent one. [°C]
     """
 
     index: pd.DatetimeIndex
@@ -130,6 +138,8 @@ class CalibrationData:
     has_solar: bool = True
     notes: list = field(default_factory=list)
     solar_column: str = "ghi_w_m2"
+    ground: dict = field(default_factory=dict)
+    outdoor_c: np.ndarray | None = None
 
     @property
     def n_observed(self):
@@ -144,11 +154,13 @@ class CalibrationData:
                 segs.append(slice(s.start, min(s.stop, stop)))
         segs = [s for s in segs if s.stop - s.start >= 12]
         return CalibrationData(
-            self.index[:stop], self.y[:stop], self.u[:stop], segs, self.step_s, self.has_solar, list(self.notes), self.solar_column
+            self.index[:stop], self.y[:stop], self.u[:stop], segs, self.step_s, self.has_solar, list(self.notes),
+            self.solar_column, dict(self.ground), None if self.outdoor_c is None else self.outdoor_c[:stop],
         )
 
 
-def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_steps=12, path=None):
+def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_steps=12, path=None, ground_c=None,
+                     ground_share=None):
     """
     Arrays for calibration from an aligned log.
 
@@ -165,6 +177,13 @@ def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_step
         Shorter runs of complete inputs are not used.
     path : str, optional
         Log file name for messages.
+    ground_c : float, optional
+        Constant ground temperature [°C]; with ``ground_share``, the models lose that share
+        of their heat to the ground instead of outdoor air (docs/calibration.md, "Ground
+        losses").
+    ground_share : float, optional
+        Share of the heat loss coefficient that goes to the ground, ``0 <= share < 0.9``,
+        e.g. from a construction's ground floors.
 
     Returns
     -------
@@ -173,7 +192,8 @@ def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_step
     Raises
     ------
     InputError
-        Missing columns, an irregular index, or no usable segment.
+        Missing columns, an irregular index, no usable segment, or a ground temperature
+        without its share (or the reverse).
     """
     frame = getattr(log, "data", log)
     if not isinstance(frame, pd.DataFrame) or not isinstance(frame.index, pd.DatetimeIndex):
@@ -204,6 +224,13 @@ def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_step
         has_solar = False
         notes.append("no irradiance given: the solar aperture is not estimated")
     internal = frame["internal_gains_w"].to_numpy(dtype=float) if "internal_gains_w" in frame.columns else np.zeros(n)
+    ground = _ground_path(ground_c, ground_share)
+    raw_outdoor = None
+    if ground:
+        notes.append(f"{100 * ground['share']:.0f} % of the heat loss goes to a ground at {ground['temperature_c']:g} °C "
+                     "(given); the models see the equivalent boundary temperature")
+        raw_outdoor = outdoor
+        outdoor = (1.0 - ground["share"]) * outdoor + ground["share"] * ground["temperature_c"]
     u = np.column_stack([outdoor, heating, solar, internal])
     complete = np.all(np.isfinite(u), axis=1)
     # Restart the model wherever an input is missing: it cannot be simulated through a hole.
@@ -221,7 +248,36 @@ def calibration_data(log, step_s=None, solar_column="ghi_w_m2", min_segment_step
     if not segments:
         raise InputError("no run of complete data long enough to calibrate (need indoor, heating and outdoor together)", path=path)
     u = np.where(np.isfinite(u), u, 0.0)
-    return CalibrationData(frame.index, y, u, segments, float(step_s), has_solar, notes, solar_column)
+    return CalibrationData(frame.index, y, u, segments, float(step_s), has_solar, notes, solar_column, ground, raw_outdoor)
+
+
+#: Largest ground share accepted: beyond it outdoor air hardly drives the home and the
+#: outdoor part of the heat loss could not be told apart (our choice).
+MAX_GROUND_SHARE = 0.9
+
+
+def _ground_split(ground, ua_w_per_k):
+    """The result's ``ground`` record: the given path and the UA split between outdoor and ground."""
+    if not ground:
+        return {}
+    f = ground["share"]
+    return {**ground, "ua_outdoor_w_per_k": (1.0 - f) * ua_w_per_k, "ua_ground_w_per_k": f * ua_w_per_k}
+
+
+def _ground_path(ground_c, ground_share):
+    """The checked ground record of :func:`calibration_data`; empty without a ground."""
+    if ground_c is None and ground_share is None:
+        return {}
+    if ground_c is None or ground_share is None:
+        given, missing = ("ground_c", "ground_share") if ground_share is None else ("ground_share", "ground_c")
+        raise InputError(f"{given} (--{given.replace('_', '-')}) needs {missing} (--{missing.replace('_', '-')}) too: "
+                         "the ground temperature and the share of the heat loss that goes to it")
+    t, f = float(ground_c), float(ground_share)
+    if not (math.isfinite(t) and -30.0 <= t <= 40.0):
+        raise InputError(f"ground temperature (--ground-c) {ground_c!r} °C is not plausible (expected -30..40 °C)")
+    if not (math.isfinite(f) and 0.0 <= f <= MAX_GROUND_SHARE):
+        raise InputError(f"ground share (--ground-share) {ground_share!r} is outside 0..{MAX_GROUND_SHARE:g}")
+    return {"temperature_c": t, "share": f}
 
 
 # -- start values from the data -----------------------------------------------------------
@@ -1247,6 +1303,7 @@ def calibrate(
         gains_schedule={"kind": "day_night", "day_start_h": 7, "night_start_h": 23} if gains == "day_night" else {"kind": "constant"},
         step_s=data.step_s,
         solar_input=data.solar_column,
+        ground=_ground_split(data.ground, derived["heat_loss_coefficient_w_per_k"]),
         extras={
             "energy_fit": energy,
             "diagnostics": {
@@ -1348,6 +1405,8 @@ def _model_inputs(result: CalibrationResult, frame):
     inputs["solar_w_m2"] = solar if np.isscalar(solar) else solar.fillna(0.0)
     logged = frame["internal_gains_w"].fillna(0.0) if "internal_gains_w" in frame.columns else 0.0
     inputs["internal_w"] = result.internal_gains_w(frame.index) + logged
+    for name, series in result.boundary_inputs(frame.index).items():
+        inputs[name] = series
     return net, inputs[list(net.inputs)]
 
 
@@ -1431,14 +1490,7 @@ def predict(result: CalibrationResult, log, x0=None):
     from thermorc.simulate import simulate, steady_state
 
     frame = getattr(log, "data", log)
-    net = result.network()
-    inputs = pd.DataFrame(index=frame.index)
-    inputs["outdoor_c"] = frame["outdoor_c"].interpolate(limit_direction="both")
-    inputs["heating_w"] = frame["heating_w"].fillna(0.0)
-    solar = frame[result.solar_input] if result.solar_input in frame.columns else 0.0
-    inputs["solar_w_m2"] = solar if np.isscalar(solar) else solar.fillna(0.0)
-    logged = frame["internal_gains_w"].fillna(0.0) if "internal_gains_w" in frame.columns else 0.0
-    inputs["internal_w"] = result.internal_gains_w(frame.index) + logged
+    net, inputs = _model_inputs(result, frame)
     fitted = result.extras.get("estimator", {}).get("initial_states", {})
     same_start = result.extras.get("data", {}).get("start") == frame.index[0].isoformat()
     if x0 is None and same_start and "indoor_c" in frame.columns and np.isfinite(frame["indoor_c"].iloc[0]):
@@ -1596,7 +1648,8 @@ def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
         pred = np.where(inside, pred, np.nan)
     else:
         frame = pd.DataFrame(
-            {"outdoor_c": data.u[:, 0], "heating_w": data.u[:, 1], data.solar_column: data.u[:, 2],
+            {"outdoor_c": data.u[:, 0] if data.outdoor_c is None else data.outdoor_c, "heating_w": data.u[:, 1],
+             data.solar_column: data.u[:, 2],
              "internal_gains_w": data.u[:, 3], "indoor_c": data.y},
             index=data.index,
         )

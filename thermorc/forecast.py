@@ -153,8 +153,9 @@ def model_inputs(result, weather, step_s=300.0, parameters=None):
     Returns
     -------
     pandas.DataFrame
-        ``outdoor_c``, ``heating_w`` (zeros), ``solar_w_m2``, ``internal_w`` on the grid that
-        covers the weather file, last hour included.
+        ``outdoor_c``, ``heating_w`` (zeros), ``solar_w_m2``, ``internal_w`` (and ``ground_c``
+        for a result with a ground path) on the grid that covers the weather file, last hour
+        included.
     """
     step = _check_step(step_s)
     if not isinstance(weather, pd.DataFrame) or not isinstance(weather.index, pd.DatetimeIndex):
@@ -195,6 +196,7 @@ def model_inputs(result, weather, step_s=300.0, parameters=None):
         HEATING: 0.0,
         SOLAR: grid[irradiance].to_numpy(),
         INTERNAL: gains.to_numpy(),
+        **{name: series.to_numpy() for name, series in result.boundary_inputs(index).items()},
     }, index=index)
 
 

@@ -48,6 +48,7 @@ __all__ = [
     "Preset",
     "PRESETS",
     "preset_parameters",
+    "with_ground",
 ]
 
 #: Ratio of fastest to slowest relaxation rate above which precision loss is reported.
@@ -58,6 +59,7 @@ OUTDOOR = "outdoor_c"
 HEATING = "heating_w"
 SOLAR = "solar_w_m2"
 INTERNAL = "internal_w"
+GROUND = "ground_c"
 
 
 @dataclass(frozen=True)
@@ -670,3 +672,53 @@ def preset_parameters(name):
     """
     preset = PRESETS[str(name).upper()]
     return preset.parameters + tuple(preset.optional)
+
+
+def with_ground(network, share, outdoor=OUTDOOR, ground=GROUND):
+    r"""
+    The network with a share of every conductance to outdoor led to a ground boundary instead.
+
+    Parameters
+    ----------
+    network : Network
+        A network with an ``outdoor`` boundary.
+    share : float
+        Share of each outdoor conductance that goes to the ground, ``0 <= share < 1``.
+    outdoor, ground : str
+        Boundary names.
+
+    Returns
+    -------
+    Network
+        A new network with boundaries ``(outdoor, ground)`` (plus any others it had), the
+        same nodes and heat inputs; a conductance :math:`g` to outdoor becomes
+        :math:`(1 - f) g` to outdoor and :math:`f g` to the ground.
+
+    Notes
+    -----
+    A node then receives :math:`g\,(1 - f)(T_o - T) + g f (T_g - T) = g\,(T_{eq} - T)` with
+    :math:`T_{eq} = (1 - f) T_o + f T_g`: the same network driven by that one equivalent
+    boundary temperature, which is how the calibration fits it. The total heat loss
+    coefficient is unchanged; the share :math:`f` of it goes to the ground.
+    """
+    share = float(share)
+    if not 0.0 <= share < 1.0:
+        raise NetworkError(f"ground share is {share:g} (expected 0 <= share < 1)")
+    if outdoor not in network.boundaries:
+        raise NetworkError(f"the network has no boundary '{outdoor}'")
+    if ground in network.boundaries:
+        raise NetworkError(f"the network already has a boundary '{ground}'")
+    out = Network(boundaries=network.boundaries + (ground,), inputs=network.input_channels, name=network.name)
+    for node in network.nodes:
+        out.add_node(node, network.capacitances[node])
+    for a, b, g in network.conductances:
+        if outdoor in (a, b):
+            node = b if a == outdoor else a
+            out.add_conductance(node, outdoor, (1.0 - share) * g)
+            if share > 0:
+                out.add_conductance(node, ground, share * g)
+        else:
+            out.add_conductance(a, b, g)
+    for channel, node, gain in network.heat_inputs:
+        out.add_heat_input(channel, node, gain)
+    return out

@@ -394,6 +394,8 @@ def _model_frame(result, frame):
     inputs["solar_w_m2"] = solar.fillna(0.0)
     logged = frame["internal_gains_w"].fillna(0.0) if "internal_gains_w" in frame.columns else 0.0
     inputs["internal_w"] = result.internal_gains_w(frame.index) + logged
+    for name, series in result.boundary_inputs(frame.index).items():
+        inputs[name] = series
     return inputs
 
 

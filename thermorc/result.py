@@ -22,7 +22,7 @@ import numpy as np
 import pandas as pd
 
 from thermorc.errors import InputError
-from thermorc.network import PRESETS, Network, preset_parameters
+from thermorc.network import GROUND, PRESETS, Network, preset_parameters, with_ground
 
 __all__ = ["CalibrationResult", "GAIN_PARAMETERS", "RESULT_FORMAT"]
 
@@ -71,6 +71,12 @@ class CalibrationResult:
         ``latitude``, ``longitude``, ``tz`` where known.
     step_s : float
         Model step used in calibration. [s]
+    ground : dict
+        Empty when the heat loss is all to outdoor air; otherwise ``temperature_c`` (the
+        constant ground temperature given) [°C], ``share`` (of every outdoor conductance that
+        goes to the ground) and the split ``ua_outdoor_w_per_k``, ``ua_ground_w_per_k``
+        [W K⁻¹]. The network then has a second boundary ``ground_c``
+        (:func:`thermorc.network.with_ground`).
     extras : dict
         Anything else worth keeping (model comparison, diagnostics, provenance).
     """
@@ -89,6 +95,7 @@ class CalibrationResult:
     solar_input: str = "ghi_w_m2"
     site: dict = field(default_factory=dict)
     step_s: float = 300.0
+    ground: dict = field(default_factory=dict)
     extras: dict = field(default_factory=dict)
 
     # -- the model -------------------------------------------------------------------------
@@ -107,7 +114,26 @@ class CalibrationResult:
         """
         values = dict(self.parameters if parameters is None else parameters)
         allowed = set(preset_parameters(self.model))
-        return Network.from_preset(self.model, {k: v for k, v in values.items() if k in allowed})
+        net = Network.from_preset(self.model, {k: v for k, v in values.items() if k in allowed})
+        return with_ground(net, self.ground["share"]) if self.ground else net
+
+    def boundary_inputs(self, index):
+        """
+        The network's boundary temperatures besides outdoor over an index.
+
+        Parameters
+        ----------
+        index : pandas.DatetimeIndex
+
+        Returns
+        -------
+        dict
+            ``{"ground_c": pandas.Series}`` (the constant ground temperature) [°C] when the
+            result has a ground path, else empty.
+        """
+        if not self.ground:
+            return {}
+        return {GROUND: pd.Series(float(self.ground["temperature_c"]), index=index, name=GROUND)}
 
     def internal_gains_w(self, index, parameters=None):
         """
@@ -199,6 +225,7 @@ class CalibrationResult:
             "solar_input": self.solar_input,
             "site": self.site,
             "step_s": float(self.step_s),
+            **({"ground": self.ground} if self.ground else {}),
             **self.extras,
         }
 
@@ -246,7 +273,7 @@ class CalibrationResult:
         known = {
             "format", "model", "parameters", "heat_loss_coefficient_w_per_k", "time_constants_h",
             "capacitance_j_per_k", "fit", "warnings", "std_errors", "intervals", "covariance",
-            "gains_schedule", "solar_input", "site", "step_s",
+            "gains_schedule", "solar_input", "site", "step_s", "ground",
         }
         result = cls(
             model=model.upper(),
@@ -263,6 +290,7 @@ class CalibrationResult:
             solar_input=str(data.get("solar_input") or "ghi_w_m2"),
             site=dict(data.get("site") or {}),
             step_s=_number(data.get("step_s"), 300.0),
+            ground=_ground(data.get("ground"), path),
             extras={k: v for k, v in data.items() if k not in known},
         )
         kind = result.gains_schedule.get("kind")
@@ -330,6 +358,10 @@ class CalibrationResult:
             f"heat loss coefficient   {self.heat_loss_coefficient_w_per_k:.1f} W/K"
             + interval("heat_loss_coefficient_w_per_k")
         )
+        if self.ground:
+            g = self.ground
+            lines.append(f"                        of which {g['ua_outdoor_w_per_k']:.1f} W/K to outdoor air and "
+                         f"{g['ua_ground_w_per_k']:.1f} W/K to the ground at {g['temperature_c']:.1f} °C (share given)")
         for i, tau in enumerate(self.time_constants_h):
             label = "time constants" if i == 0 else ""
             lines.append(f"{label:<24}{tau:.1f} h" + interval(f"time_constant_{i + 1}_h"))
@@ -387,6 +419,24 @@ def _check_file_fields(data, params, path):
     if not ok:
         raise InputError(f"'matrix' must be {len(names)} x {len(names)} numbers, one row and column per name",
                          path=path, column="covariance.matrix")
+
+
+def _ground(value, path):
+    """The ``ground`` record of a RESULT.json, checked; empty when there is none."""
+    if value is None or value == {}:
+        return {}
+    where = {"path": path, "column": "ground"}
+    if not isinstance(value, dict):
+        raise InputError(f"{value!r} is not an object (expected temperature_c and share)", **where)
+    out = {}
+    for key in ("temperature_c", "share", "ua_outdoor_w_per_k", "ua_ground_w_per_k"):
+        v = value.get(key)
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise InputError(f"{v!r} is not a finite number", path=path, column=f"ground.{key}")
+        out[key] = float(v)
+    if not 0.0 <= out["share"] < 1.0:
+        raise InputError(f"{out['share']:g} is not a share (expected 0 <= share < 1)", path=path, column="ground.share")
+    return out
 
 
 def _number(value, default=math.nan):
