@@ -267,3 +267,18 @@ def test_compiled_sections_equal_scipy_lfilter(rng):
     first_order_sections(a, drive, z0, ours)
     _sections_lfilter(a, drive, z0, ref)
     np.testing.assert_allclose(ours, ref, rtol=1e-12, atol=1e-12)
+
+
+def test_sensed_temperature_is_the_first_order_lag_of_lsim():
+    # tau ds/dt = T - s with T linear between samples: scipy.signal.lsim of 1/(tau s + 1)
+    # (linear interpolation of its input) on a 1-s grid is the reference.
+    import scipy.signal
+
+    from thermorc.simulate import sensed_temperature
+
+    t = np.arange(0.0, 20000.0, 300.0)
+    temperature = 20 + np.sin(t / 2000) + t / 10000
+    fine = np.arange(0.0, t[-1] + 1, 1.0)
+    _, ref, _ = scipy.signal.lsim(([1.0], [450.0, 1.0]), np.interp(fine, t, temperature), fine, X0=[450.0 * temperature[0]])
+    np.testing.assert_allclose(sensed_temperature(temperature, 300.0, 450.0), ref[::300], atol=1e-9)
+    np.testing.assert_array_equal(sensed_temperature(temperature, 300.0, 0.0), temperature)

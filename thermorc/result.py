@@ -44,7 +44,9 @@ class CalibrationResult:
         Preset name (``"1R1C"``, ``"2R2C"``, ``"3R2C"``).
     parameters : dict
         Parameter name -> value: the preset's R [K W⁻¹], C [J K⁻¹], solar aperture [m²] and
-        share, plus internal gains [W] (``internal_gains_w``, or the day/night pair).
+        share, plus internal gains [W] (``internal_gains_w``, or the day/night pair) and
+        ``sensor_time_constant_s``, the first-order lag through which the log's sensor reads
+        the indoor node (0 for none) [s].
     heat_loss_coefficient_w_per_k : float
         Steady-state UA seen from the indoor node. [W K⁻¹]
     time_constants_h : list of float
@@ -373,6 +375,9 @@ class CalibrationResult:
                            ("internal_gains_night_w", "unlogged gains, night")):
             if key in self.parameters:
                 lines.append(f"{label:<24}{self.parameters[key]:.0f} W")
+        lag = self.parameters.get("sensor_time_constant_s", 0.0)
+        if lag > 0:
+            lines.append(f"{'sensor lag':<24}{lag / 60:.1f} min (first-order, fitted to the samples)")
         fit = self.fit
         if fit:
             lines.append(

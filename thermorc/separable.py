@@ -25,6 +25,7 @@ import math
 import numpy as np
 
 from thermorc.errors import NetworkError
+from thermorc.simulate import sensed_temperature
 
 __all__ = ["ResponseBasis", "preset_matrices", "symmetric_modes"]
 
@@ -97,6 +98,8 @@ class ResponseBasis:
     level(s) [W], then the hidden node's initial temperature per segment [°C]. The measured
     indoor temperature starts the indoor node; the outdoor temperature is held linearly
     between samples, the powers as interval means, as in :func:`thermorc.simulate.run_modes`.
+    With :attr:`sensor_s` above zero every response is read through the sensor's lag
+    (:func:`thermorc.simulate.sensed_temperature`), row by row, before the block means.
     """
 
     def __init__(self, model, data, day, block_id, n_blocks):
@@ -135,6 +138,9 @@ class ResponseBasis:
         self._seg_start = np.array([seg.start for seg in self.segments], dtype=np.int64)
         self._seg_stop = np.array([seg.stop for seg in self.segments], dtype=np.int64)
         self._y0 = np.array([data.y[seg][np.isfinite(data.y[seg])][0] for seg in self.segments])
+        #: Time constant of the sensor's first-order lag [s]; 0 for none. Settable between runs.
+        self.sensor_s = 0.0
+        self._to_blocks = None
 
     def columns(self, rc):
         """
@@ -152,13 +158,27 @@ class ResponseBasis:
         linear : numpy.ndarray, shape (n_blocks, n_linear)
             Change of the indoor temperature per unit of each linear parameter.
         """
-        both = self._run(rc, self.block_id, self.row_weight, self.n_blocks)
+        if self.sensor_s > 0:
+            # The lag acts row by row, so the rows are filtered first and then averaged.
+            if self._to_blocks is None:
+                import scipy.sparse
+
+                used = np.flatnonzero(self.block_id >= 0)
+                self._to_blocks = scipy.sparse.csr_matrix(
+                    (self.row_weight[used], (self.block_id[used], used)), shape=(self.n_blocks, len(self.data.y)))
+            both = self._to_blocks @ self.rows(rc)
+        else:
+            both = self._run(rc, self.block_id, self.row_weight, self.n_blocks)
         return both[:, 0], both[:, 1:]
 
     def rows(self, rc):
         """The responses of :meth:`columns` at every row (zero outside the segments)."""
         n = len(self.data.y)
-        return self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n, self._segment_of(np.arange(n), n))
+        out = self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n, self._segment_of(np.arange(n), n))
+        if self.sensor_s > 0:
+            for seg in self.segments:
+                out[seg] = sensed_temperature(out[seg], self.step_s, self.sensor_s)
+        return out
 
     def _segment_of(self, block_id, n_blocks):
         owner = np.full(n_blocks, -1, dtype=np.int64)

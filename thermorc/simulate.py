@@ -34,6 +34,7 @@ References
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -52,9 +53,48 @@ __all__ = [
     "steady_state",
     "SimulationResult",
     "run_modes",
+    "sensed_temperature",
 ]
 
 _SERIES_BELOW = 1e-3  # x = rate*dt below which the phi functions use their Taylor series
+
+
+def sensed_temperature(temperature_c, step_s, time_constant_s):
+    r"""
+    What a sensor with a first-order lag reads of a temperature sampled on a uniform grid.
+
+    Parameters
+    ----------
+    temperature_c : array_like, shape (N,) or (N, k)
+        The true temperature at the stamps (e.g. the indoor node), one column per series. [°C]
+    step_s : float
+        Grid step. [s]
+    time_constant_s : float
+        Sensor time constant :math:`\tau_s`; 0 for a sensor without lag. [s]
+
+    Returns
+    -------
+    numpy.ndarray, shape of ``temperature_c``
+        The sensor reading, which starts equal to the temperature. [°C]
+
+    Notes
+    -----
+    The sensor obeys :math:`\tau_s\,ds/dt = T(t) - s`. With :math:`T` linear between samples
+    the exact step is :math:`s_{k+1} = a s_k + (1 - a) T_k + (1 - \tau_s (1 - a)/\Delta t)
+    (T_{k+1} - T_k)` with :math:`a = e^{-\Delta t/\tau_s}` (the first-order-hold solution of a
+    first-order system [2]_), run by :func:`scipy.signal.lfilter`.
+    """
+    x = np.asarray(temperature_c, dtype=float)
+    tau = float(time_constant_s)
+    if tau <= 0 or x.shape[0] == 0:
+        return x.copy()
+    a = math.exp(-float(step_s) / tau)
+    b0 = 1.0 - tau * (1.0 - a) / float(step_s)
+    b = np.array([b0, (1.0 - a) - b0])
+    den = np.array([1.0, -a])
+    zi = scipy.signal.lfilter_zi(b, den).reshape((1,) + (1,) * (x.ndim - 1)) * x[:1]
+    out, _ = scipy.signal.lfilter(b, den, x, axis=0, zi=zi)
+    return out
 
 
 def discretise(a, b, dt_s, method="zoh"):
