@@ -24,20 +24,32 @@ from thermorc.errors import ThermorcWarning
 
 SITE = {"latitude": 45.0, "longitude": -90.0, "altitude_m": 300.0}  # synthetic weather's site
 
-# home: (time-constant tolerance, prediction RMSE bound [K]); the targets are 0.25 and 0.3 K.
+# Two periods of the invented weather: the log of "late" runs from late February (its last
+# two weeks are 2-8 K warmer and sunnier than the fitted four), the log of "mid" from early
+# December (the predicted weeks are like the fitted ones).
+STARTS = {"late": "2024-01-08", "mid": "2023-10-20"}
+
+# (period, home): (time-constant tolerance, prediction RMSE bound [K]); the targets are 0.25
+# and 0.3 K. Where a bound is looser, the target is not met yet and the bound is the measured
+# level plus a margin (docs/calibration.md).
 CASES = {
-    "light": (0.25, 0.6),
-    "leaky": (0.25, 0.35),
-    "well_insulated": (0.25, 0.8),
-    "heavy": (0.40, 0.4),  # target 0.25 not met: measured -33 % (183 h against 275 h)
+    ("late", "light"): (0.25, 0.55),  # measured 0.47 K
+    ("late", "leaky"): (0.25, 0.3),
+    ("late", "well_insulated"): (0.25, 0.75),  # measured 0.68 K
+    ("late", "heavy"): (0.40, 0.3),  # tau target not met: measured -34 % (182 h against 275 h)
+    ("mid", "light"): (0.25, 0.3),
+    ("mid", "leaky"): (0.25, 0.3),
+    ("mid", "well_insulated"): (0.25, 0.3),
+    ("mid", "heavy"): (0.40, 0.3),  # tau target not met: measured -32 %
 }
 
 
 @pytest.fixture(scope="module")
 def fitted():
     out = {}
-    for name in CASES:
-        log, truth = synthetic.simulate_home(synthetic.fine_home(name), days=42, step_s=300, seed=1, warmup_days=45)
+    for period, name in CASES:
+        log, truth = synthetic.simulate_home(synthetic.fine_home(name), days=42, step_s=300, seed=1, warmup_days=45,
+                                             start=STARTS[period])
         log = log.assign(solar_vertical_w_m2=vertical_irradiance(log, SITE))
         n_fit = 28 * 288
         data = estimate.calibration_data(log.iloc[:n_fit], solar_column="solar_vertical_w_m2")
@@ -46,32 +58,32 @@ def fitted():
             result = estimate.calibrate_auto(data)
         pred = estimate.predict(result, log)["indoor_c"].to_numpy()
         err = log["indoor_c"].to_numpy()[n_fit:] - pred[n_fit:]
-        out[name] = (result, truth, float(np.sqrt(np.mean(err**2))), log)
+        out[period, name] = (result, truth, float(np.sqrt(np.mean(err**2))), log)
     return out
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("name", list(CASES))
-def test_heat_loss_coefficient_within_5_percent_of_the_fine_model(fitted, name):
-    result, truth, _, _ = fitted[name]
+@pytest.mark.parametrize("case", list(CASES))
+def test_heat_loss_coefficient_within_5_percent_of_the_fine_model(fitted, case):
+    result, truth, _, _ = fitted[case]
     low = 0.95 * truth["heat_loss_outdoor_w_per_k"]
     high = 1.05 * truth["heat_loss_coefficient_w_per_k"]
     assert low <= result.heat_loss_coefficient_w_per_k <= high
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("name", list(CASES))
-def test_dominant_time_constant_against_the_relevant_mode(fitted, name):
-    result, truth, _, _ = fitted[name]
-    tolerance = CASES[name][0]
+@pytest.mark.parametrize("case", list(CASES))
+def test_dominant_time_constant_against_the_relevant_mode(fitted, case):
+    result, truth, _, _ = fitted[case]
+    tolerance = CASES[case][0]
     assert result.time_constants_h[0] == pytest.approx(truth["time_constant_relevant_h"], rel=tolerance)
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("name", list(CASES))
-def test_open_loop_prediction_of_the_next_two_weeks(fitted, name):
-    _, _, rmse, _ = fitted[name]
-    assert rmse <= CASES[name][1]
+@pytest.mark.parametrize("case", list(CASES))
+def test_open_loop_prediction_of_the_next_two_weeks(fitted, case):
+    _, _, rmse, _ = fitted[case]
+    assert rmse <= CASES[case][1]
 
 
 @pytest.mark.slow
@@ -80,7 +92,7 @@ def test_a_given_ground_temperature_gives_the_total_heat_loss_coefficient(fitted
     # With the fine model's ground temperature and the share of its exact steady-state loss
     # that goes to the ground (what a construction's ground-floor U A gives an auditor), UA is
     # the fine model's total within +-5 %, not somewhere between outdoor-only and total.
-    _, truth, _, log = fitted[name]
+    _, truth, _, log = fitted["late", name]
     share = truth["heat_loss_ground_w_per_k"] / truth["heat_loss_coefficient_w_per_k"]
     assert share > 0.05
     data = estimate.calibration_data(log.iloc[: 28 * 288], solar_column="solar_vertical_w_m2",
