@@ -1342,6 +1342,20 @@ def calibrate(
         [n_ for n_ in names if not n_.startswith("internal")],
     )
     result_warnings += diagnose.bound_warnings(theta[: layout.n_physical], lower[: layout.n_physical], upper[: layout.n_physical], names)
+    if not _screen:
+        derived_names = ["heat_loss_coefficient_w_per_k", "time_constant_1_h"]
+        result_warnings += diagnose.interval_warnings(
+            [derived[n_] for n_ in derived_names], [intervals[n_][0] for n_ in derived_names],
+            [intervals[n_][1] for n_ in derived_names], derived_names)
+        record_h = (len(data.index) * data.step_s) / 3600.0
+        slow_h = derived["time_constant_1_h"]
+        if slow_h > record_h:
+            # Less than one e-fold of the slowest mode is in the record: its length, and the
+            # part of UA it carries, rest on the model's form rather than on the data.
+            result_warnings.append(
+                f"The slowest time constant ({slow_h:.0f} h) is longer than the record ({record_h:.0f} h): the data "
+                "do not determine it (a lower limit at best). Use a longer log, or one with night setbacks or "
+                "periods with the heating off.")
     for w in result_warnings:
         if "converg" not in w:
             warnings.warn(w, IdentifiabilityWarning, stacklevel=2)
