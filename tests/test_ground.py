@@ -125,3 +125,24 @@ def test_forecast_heat_differs_by_the_ground_loss(log_csv, tmp_path):
     expected = result.ground["ua_ground_w_per_k"] * (8.0 - with_ground["outdoor_c"].mean())
     difference = all_outdoor["heating_w"].mean() - with_ground["heating_w"].mean()
     assert difference == pytest.approx(expected, rel=0.01)
+
+
+@pytest.mark.parametrize("ground, where", [
+    ({"temperature_c": 8.0, "share": 1.5, "ua_outdoor_w_per_k": 1.0, "ua_ground_w_per_k": 1.0}, "ground.share"),
+    ({"temperature_c": "warm", "share": 0.2, "ua_outdoor_w_per_k": 1.0, "ua_ground_w_per_k": 1.0}, "ground.temperature_c"),
+    ([8.0, 0.2], "ground"),
+])
+def test_a_damaged_ground_record_is_refused_in_one_line(log_csv, tmp_path, ground, where):
+    out = tmp_path / "RESULT.json"
+    r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "1R1C", "--ground-c", "8", "--ground-share", "0.3",
+                            "--out", str(out), "--quiet"])
+    assert r.exit_code == 0, r.output
+    body = json.loads(out.read_text(encoding="utf-8"))
+    body["ground"] = ground
+    out.write_text(json.dumps(body), encoding="utf-8")
+    sim = tmp_path / "SIM.csv"
+    r = runner.invoke(app, ["simulate", str(out), "--log", str(log_csv), "--out", str(sim)])
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and f"RESULT.json, column '{where}'" in lines[0], r.stderr
+    assert not sim.exists()
