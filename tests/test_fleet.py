@@ -150,6 +150,10 @@ def test_manifest_csv_rows_and_paths(fleet_dir):
     ("id,log,colour\nh1,a.csv,red\n", "homes.csv, row 1, column 'colour'"),
     ("id,log,partition\nh1,d,home_id\n", "homes.csv, row 2, column 'partition'"),
     ("id,log,tz\nh1,a.csv,Mars/Olympus\n", "homes.csv, row 2, column 'tz'"),
+    ("id,log,ground_c,ground_share\nh1,a.csv,9,1.5\n", "homes.csv, row 2, column 'ground_share'"),
+    ("id,log,ground_c,ground_share\nh1,a.csv,warm,0.1\n", "homes.csv, row 2, column 'ground_c'"),
+    ("id,log,ground_c\nh1,a.csv,9\n", "homes.csv, row 2, column 'ground_c'"),
+    ("id,log,ground_share\nh1,a.csv,0.1\n", "homes.csv, row 2, column 'ground_share'"),
 ])
 def test_manifest_csv_errors_name_row_and_column(tmp_path, body, where):
     path = tmp_path / "homes.csv"
@@ -579,3 +583,25 @@ def test_rows_come_back_in_input_order_with_a_bounded_window():
         order.done(i, home)
         out += list(order.ready())
     assert out == list(range(40))
+
+
+def test_a_ground_in_the_manifest_reaches_the_calibration(fleet_dir, tmp_path):
+    # The same home with and without a ground: the row is calibrate_files' result with the
+    # ground, and only the home with the ground gets a new fingerprint.
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    log = root / "logs" / "h1.csv"
+    manifest.write_text(f"id,log,site,ground_c,ground_share\nplain,{log},\"{SITE}\",,\ng,{log},\"{SITE}\",9,0.2\n")
+    homes = read_manifest(manifest)
+    assert homes[0].ground_c is None and (homes[1].ground_c, homes[1].ground_share) == (9.0, 0.2)
+    assert input_fingerprint(homes[0], model="2R2C") == input_fingerprint(
+        read_manifest(root / "homes.csv")[0].__class__(home_id="plain", log=str(log), site=SITE), model="2R2C")
+    assert input_fingerprint(homes[1], model="2R2C") != input_fingerprint(homes[0], model="2R2C")
+    out = tmp_path / "R.parquet"
+    run_fleet(manifest, out, workers=1, model="2R2C")
+    rows = pd.read_parquet(out).set_index("home_id")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        single = calibrate_files(log, site=SITE, model="2R2C", ground_c=9.0, ground_share=0.2)
+    assert rows.loc["g", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
+    assert rows.loc["g", "ua_w_per_k"] != pytest.approx(rows.loc["plain", "ua_w_per_k"], rel=1e-3)

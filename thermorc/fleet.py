@@ -65,7 +65,7 @@ __all__ = [
 #: Manifest columns (CSV header names, TOML keys). ``id`` and ``log`` are required.
 MANIFEST_COLUMNS = (
     "id", "log", "partition", "column_map", "site", "weather", "tz", "interval", "floor_area_m2",
-    "construction",
+    "construction", "ground_c", "ground_share",
 )
 _PATH_COLUMNS = ("log", "column_map", "weather", "construction")
 _MODELS = ("1R1C", "2R2C", "3R2C", "auto")
@@ -157,6 +157,9 @@ class HomeSpec:
         ``start`` or ``end``: interval label of the log's powers.
     floor_area_m2 : float or None
         Conditioned floor area. [m²]
+    ground_c, ground_share : float or None
+        Ground temperature [°C] and the share of the heat loss that goes to it (see
+        :func:`thermorc.chain.calibrate_files`); the share may come from the construction.
     manifest : str
         The manifest file, for messages.
     row : int or None
@@ -173,6 +176,8 @@ class HomeSpec:
     interval: str | None = None
     floor_area_m2: float | None = None
     construction: str | None = None
+    ground_c: float | None = None
+    ground_share: float | None = None
     manifest: str | None = None
     row: int | None = None
 
@@ -364,10 +369,32 @@ def _home_from_record(values, row, key_rows, path, base):
                 f"floor area {values.get('floor_area_m2')!r} m2 is outside {lo:g}..{hi:g} m2 (expected the "
                 "conditioned floor area of one dwelling in square metres)", **where("floor_area_m2"),
             )
+    ground = {}
+    for key in ("ground_c", "ground_share"):
+        value = values.get(key)
+        if value is None or (isinstance(value, str) and not value.strip()):
+            continue
+        try:
+            ground[key] = float(value) if not isinstance(value, bool) else math.nan
+        except (TypeError, ValueError, OverflowError):
+            raise InputError(f"{key} is {value!r} (expected a number)", **where(key)) from None
+    if "ground_share" in ground and "ground_c" not in ground:
+        raise InputError("ground_share needs ground_c (the ground temperature) too", **where("ground_share"))
+    if "ground_c" in ground and "ground_share" not in ground and paths["construction"] is None:
+        raise InputError("ground_c needs ground_share, or a construction with a ground_floor element",
+                         **where("ground_c"))
+    from thermorc.estimate import _ground_path
+
+    try:
+        _ground_path(ground.get("ground_c"), ground.get("ground_share", 0.0 if "ground_c" in ground else None))
+    except InputError as exc:
+        bad = "ground_c" if "temperature" in exc.message else "ground_share"
+        raise InputError(exc.message, **where(bad)) from None
     return HomeSpec(
         home_id=home_id, log=paths["log"], partition=partition, column_map=paths["column_map"], site=site,
         weather=paths["weather"], tz=tz, interval=interval, floor_area_m2=area,
-        construction=paths["construction"], manifest=path, row=row,
+        construction=paths["construction"], ground_c=ground.get("ground_c"), ground_share=ground.get("ground_share"),
+        manifest=path, row=row,
     )
 
 
@@ -597,7 +624,7 @@ def calibrate_home(home, model="auto", gains="constant"):
             result = calibrate_files(
                 log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
                 site=home.site, construction=home.construction, model=model, gains=gains, table=table,
-                table_sha256=digest,
+                table_sha256=digest, ground_c=home.ground_c, ground_share=home.ground_share,
             )
         row = flatten_result(result, home, model)
         data_warns = [_one_line(w.message) for w in caught if issubclass(w.category, ThermorcWarning)]
@@ -696,7 +723,8 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
         hive-partitioned dataset the files of the home's partition folder; for any other
         dataset, all its files), column map, weather and construction files, each as its
         SHA-256; the manifest fields ``partition``, ``site``, ``tz``, ``interval`` and
-        ``floor_area_m2``; ``model``, ``gains`` and the recipe version. File paths count
+        ``floor_area_m2`` (and ``ground_c``, ``ground_share`` when given); ``model``, ``gains``
+        and the recipe version. File paths count
         only through their content, so moving the data keeps rows current.
 
     Notes
@@ -730,6 +758,8 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
         "model": model,
         "gains": gains,
     }
+    # Only when given, so that the fingerprints of homes without a ground stay as they were.
+    record.update({k: getattr(home, k) for k in ("ground_c", "ground_share") if getattr(home, k) is not None})
     text = json.dumps(record, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(text.encode()).hexdigest()
 
