@@ -67,6 +67,7 @@ __all__ = [
     "calibrate",
     "calibrate_auto",
     "energy_balance_start",
+    "fit_sensor_lag",
     "free_float_time_constant_s",
     "predict",
 ]
@@ -1360,12 +1361,13 @@ def calibrate(
         if "converg" not in w:
             warnings.warn(w, IdentifiabilityWarning, stacklevel=2)
     temp = diagnose.temperature_fit_metrics(data.y[observed], yhat[observed])
+    n_params = k + (1 if sensor["time_constant_s"] > 0 else 0)  # the lag counts in Guideline 14's n - p
     fit = {
         "rmse_k": temp["rmse_k"],
         "bias_k": temp["bias_k"],
         "max_abs_error_k": temp["max_abs_k"],
         "n_samples": n,
-        "n_params": k,
+        "n_params": n_params,
         "cv_rmse_pct": math.nan,
         "nmbe_pct": math.nan,
         "estimator": method,
@@ -1373,7 +1375,7 @@ def calibrate(
     }
     energy = {}
     if energy_metrics:
-        energy = _energy_metrics(layout, theta, data, k)
+        energy = _energy_metrics(layout, theta, data, n_params)
         fit["cv_rmse_pct"] = energy.get("hourly", {}).get("cv_rmse_pct", math.nan)
         fit["nmbe_pct"] = energy.get("hourly", {}).get("nmbe_pct", math.nan)
         hourly = energy.get("hourly", {})
