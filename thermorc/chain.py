@@ -92,6 +92,7 @@ def prepare_log(
     step_s=None,
     *,
     table=None,
+    solar_weights=None,
 ):
     """
     Read a log, put it on a uniform grid, and fill outdoor temperature and irradiance.
@@ -117,6 +118,8 @@ def prepare_log(
     table : pandas.DataFrame, optional
         The log's cells already read (see :func:`thermorc.read.read_log`); ``log_path`` then
         only names the log.
+    solar_weights : dict, optional
+        Façade weights of the solar input (see :func:`vertical_irradiance`).
 
     Returns
     -------
@@ -178,15 +181,16 @@ def prepare_log(
         else:
             notes.append("no irradiance and no site: solar gains are not modelled (give --site LAT,LON or --weather)")
     if "ghi_w_m2" in frame.columns and frame["ghi_w_m2"].notna().any() and "latitude" in site and "longitude" in site:
-        frame[SOLAR_COLUMN] = vertical_irradiance(frame, site, weather_on_grid)
-        notes.append("solar gains follow the irradiance on the four vertical façades (pvlib transposition)")
+        frame[SOLAR_COLUMN] = vertical_irradiance(frame, site, weather_on_grid, weights=solar_weights)
+        notes.append("solar gains follow the irradiance on the four vertical façades (pvlib transposition)"
+                     + (", weighted by the construction's windows" if solar_weights else ""))
     aligned.data = frame
     # The gap mask covers the columns added here too.
     aligned.gap_mask = frame.isna().any(axis=1)
     return PreparedLog(aligned=aligned, metadata=meta, weather_metadata=weather_meta, site=site, notes=notes)
 
 
-def vertical_irradiance(frame, site, weather=None):
+def vertical_irradiance(frame, site, weather=None, weights=None):
     """
     Sum of the irradiance on vertical walls facing N, E, S and W: the solar input of models.
 
@@ -205,11 +209,14 @@ def vertical_irradiance(frame, site, weather=None):
         ``latitude``, ``longitude`` [deg] and optionally ``altitude_m`` [m].
     weather : pandas.DataFrame, optional
         ``dni_w_m2`` and ``dhi_w_m2`` [W m⁻²] on the same index, when a weather file gave them.
+    weights : dict, optional
+        Weight of each façade, keys ``n``, ``e``, ``s``, ``w`` with mean 1 (e.g. from
+        :func:`thermorc.construction.window_facade_weights`); default: 1 each, the plain sum.
 
     Returns
     -------
     numpy.ndarray
-        Sum of the plane-of-array irradiance of the four façades. [W m⁻²]
+        Sum of the (weighted) plane-of-array irradiance of the four façades. [W m⁻²]
     """
     from thermorc.solar import facade_arrays
 
@@ -226,7 +233,8 @@ def vertical_irradiance(frame, site, weather=None):
         np.where(ghi_ok, ghi, 0.0), frame.index, site["latitude"], site["longitude"], site.get("altitude_m", 0.0) or 0.0,
         dni=dni, dhi=dhi,
     )
-    total = poa["poa_n_w_m2"] + poa["poa_e_w_m2"] + poa["poa_s_w_m2"] + poa["poa_w_w_m2"]
+    weights = weights or {}
+    total = sum(float(weights.get(f, 1.0)) * poa[f"poa_{f}_w_m2"] for f in "nesw")
     return np.where(ghi_ok, total, np.nan)
 
 
@@ -398,8 +406,13 @@ def calibrate_files(
         share_note = (f"ground share {ground_share:.3f} = the construction's ground-floor U A "
                       f"{ua['ground_ua_w_per_k']:.1f} W/K over its UA {ua['ua_w_per_k']:.1f} W/K")
     estimate._ground_path(ground_c, ground_share)  # checked before the log is read
+    weights = None
+    if built is not None:
+        from thermorc.construction import window_facade_weights
+
+        weights = window_facade_weights(built)
     prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site,
-                           step_s=step_s, table=table)
+                           step_s=step_s, table=table, solar_weights=weights)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
         quality.require_model(report, model, path=str(log_path))
@@ -418,6 +431,8 @@ def calibrate_files(
         else:
             result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path), ua_prior=ua_prior)
     result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
+    if weights and result.solar_input == SOLAR_COLUMN:
+        result.solar_weights = weights
     result.extras["data_quality"] = {"verdict": report.verdict, "supported": list(report.supported)}
     if built is not None:
         from thermorc.iso13790 import plausibility_details
@@ -466,7 +481,8 @@ def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None
     if isinstance(site, str):
         site = parse_site(site)
     site = site or ({k: result.site[k] for k in ("latitude", "longitude") if k in result.site} or None)
-    prepared = prepare_log(log_path, column_map=column_map, tz=tz, weather_path=weather, site=site, step_s=result.step_s)
+    prepared = prepare_log(log_path, column_map=column_map, tz=tz, weather_path=weather, site=site, step_s=result.step_s,
+                           solar_weights=result.solar_weights or None)
     frame = prepared.data
     pred = predict(result, frame)
     pred["indoor_measured_c"] = frame["indoor_c"]

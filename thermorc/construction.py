@@ -45,6 +45,7 @@ __all__ = [
     "DAY_S",
     "LUMPED_BIOT_LIMIT",
     "ELEMENT_KINDS",
+    "window_facade_weights",
     "Material",
     "Layer",
     "Element",
@@ -1125,6 +1126,50 @@ def construction_ua(construction):
         "air_leakage_w_per_k": leak,
         "ua_w_per_k": float(opaque + windows + leak),
     }
+
+
+_COMPASS_DEG = {"N": 0.0, "NE": 45.0, "E": 90.0, "SE": 135.0, "S": 180.0, "SW": 225.0, "W": 270.0, "NW": 315.0}
+
+
+def window_facade_weights(construction):
+    """
+    Weights of the four façades in the solar input, from the construction's windows.
+
+    Parameters
+    ----------
+    construction : Construction
+
+    Returns
+    -------
+    dict or None
+        ``{"n", "e", "s", "w"}`` -> weight, with mean 1: each façade's share of the windows'
+        :math:`g A` (area when no window gives ``g_value``) times four. ``None`` when no
+        vertical window has an orientation.
+
+    Notes
+    -----
+    Solar gains through windows are computed per orientation (ISO 13790:2008, clause 11.3;
+    from memory): the gain of a façade is its windows' :math:`g A` times the irradiance on it.
+    A window between two compass points (NE, or an azimuth) is shared between its two
+    neighbouring façades in proportion to the angle; horizontal windows (roof lights) are left
+    out, since the input is the irradiance on vertical walls.
+    """
+    windows = [e for e in construction.elements if e.kind == "window" and e.orientation not in (None, "horizontal")]
+    if not windows:
+        return None
+    use_g = any(e.g_value is not None for e in windows)
+    share = dict.fromkeys("nesw", 0.0)
+    for e in windows:
+        azimuth = _COMPASS_DEG[e.orientation] if isinstance(e.orientation, str) else float(e.orientation) % 360.0
+        weight = e.area_m2 * ((e.g_value if e.g_value is not None else 0.0) if use_g else 1.0)
+        low = int(azimuth // 90.0) % 4
+        frac = (azimuth - 90.0 * (azimuth // 90.0)) / 90.0
+        share["nesw"[low]] += weight * (1.0 - frac)
+        share["nesw"[(low + 1) % 4]] += weight * frac
+    total = sum(share.values())
+    if total <= 0:
+        return None
+    return {f: 4.0 * v / total for f, v in share.items()}
 
 
 # Choices of this module, stated where they are used in the text of the recommendations.

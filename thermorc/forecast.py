@@ -174,7 +174,8 @@ def model_inputs(result, weather, step_s=300.0, parameters=None):
                     "the calibration result has no site, which its solar input needs (calibrate with --site or "
                     "a weather file)", column="site",
                 )
-            weather = weather.assign(**{SOLAR_COLUMN: vertical_irradiance(weather, site, weather)})
+            weather = weather.assign(**{SOLAR_COLUMN: vertical_irradiance(weather, site, weather,
+                                                                          weights=result.solar_weights or None)})
             irradiance = SOLAR_COLUMN
     for col in ("outdoor_c", irradiance or result.solar_input):
         if col not in weather.columns:

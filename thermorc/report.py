@@ -381,7 +381,7 @@ def model_weather(result, weather, site=None):
     site = {**(result.site or {}), **(site or {})}
     if result.solar_input == chain.SOLAR_COLUMN and "latitude" in site and "ghi_w_m2" in weather.columns:
         out = weather.copy()
-        out[chain.SOLAR_COLUMN] = chain.vertical_irradiance(out, site, out)
+        out[chain.SOLAR_COLUMN] = chain.vertical_irradiance(out, site, out, weights=result.solar_weights or None)
         return out
     return weather
 
@@ -784,8 +784,19 @@ def build_report(home, month, result=None, progress=None):
     label = f"{year:04d}-{mon:02d}"
     progress("reading the log")
     site = home.site if "latitude" in home.site else None
+    if result is None and home.result is not None:
+        result = CalibrationResult.from_json(home.result)
+    # The log's solar input with the façade weights the model was (or will be) calibrated with.
+    if result is not None:
+        weights = result.solar_weights or None
+    elif home.construction is not None:
+        from thermorc.construction import read_construction, window_facade_weights
+
+        weights = window_facade_weights(read_construction(home.construction))
+    else:
+        weights = None
     prepared = prepare_log(home.log, column_map=home.column_map, tz=home.tz, interval=home.interval,
-                           weather_path=home.weather, site=site, step_s=home.step_s)
+                           weather_path=home.weather, site=site, step_s=home.step_s, solar_weights=weights)
     frame = prepared.data
     step_s = float(prepared.aligned.step_s) if hasattr(prepared.aligned, "step_s") else float(
         np.median(np.diff(frame.index.asi8)) / 1e9)
@@ -797,8 +808,6 @@ def build_report(home, month, result=None, progress=None):
             path=home.log)
     observed = ~np.asarray(prepared.aligned.gap_mask, dtype=bool)
     report_quality = quality.inspect_log(prepared.aligned, has_weather=home.weather is not None)
-    if result is None and home.result is not None:
-        result = CalibrationResult.from_json(home.result)
     if result is None:
         result = _calibrate(home, progress)
     rep = MonthlyReport(home=home, month=label, result=result)

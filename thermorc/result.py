@@ -69,6 +69,9 @@ class CalibrationResult:
         (local time of the site).
     solar_input : str
         Which irradiance the aperture multiplies (``"ghi_w_m2"``: global horizontal).
+    solar_weights : dict
+        Façade weights (``n``, ``e``, ``s``, ``w``, mean 1) of the vertical solar input, from a
+        construction's windows; empty for the plain sum of the four façades.
     site : dict
         ``latitude``, ``longitude``, ``tz`` where known.
     step_s : float
@@ -95,6 +98,7 @@ class CalibrationResult:
     covariance: dict | None = None
     gains_schedule: dict = field(default_factory=lambda: {"kind": "constant"})
     solar_input: str = "ghi_w_m2"
+    solar_weights: dict = field(default_factory=dict)
     site: dict = field(default_factory=dict)
     step_s: float = 300.0
     ground: dict = field(default_factory=dict)
@@ -228,6 +232,7 @@ class CalibrationResult:
             "site": self.site,
             "step_s": float(self.step_s),
             **({"ground": self.ground} if self.ground else {}),
+            **({"solar_weights": self.solar_weights} if self.solar_weights else {}),
             **self.extras,
         }
 
@@ -275,7 +280,7 @@ class CalibrationResult:
         known = {
             "format", "model", "parameters", "heat_loss_coefficient_w_per_k", "time_constants_h",
             "capacitance_j_per_k", "fit", "warnings", "std_errors", "intervals", "covariance",
-            "gains_schedule", "solar_input", "site", "step_s", "ground",
+            "gains_schedule", "solar_input", "site", "step_s", "ground", "solar_weights",
         }
         result = cls(
             model=model.upper(),
@@ -293,6 +298,7 @@ class CalibrationResult:
             site=dict(data.get("site") or {}),
             step_s=_number(data.get("step_s"), 300.0),
             ground=_ground(data.get("ground"), path),
+            solar_weights=_solar_weights(data.get("solar_weights"), path),
             extras={k: v for k, v in data.items() if k not in known},
         )
         kind = result.gains_schedule.get("kind")
@@ -424,6 +430,21 @@ def _check_file_fields(data, params, path):
     if not ok:
         raise InputError(f"'matrix' must be {len(names)} x {len(names)} numbers, one row and column per name",
                          path=path, column="covariance.matrix")
+
+
+def _solar_weights(value, path):
+    """The ``solar_weights`` record of a RESULT.json, checked; empty when there is none."""
+    if value is None or value == {}:
+        return {}
+    if not isinstance(value, dict) or set(value) != set("nesw"):
+        raise InputError(f"{value!r} is not a weight for each of n, e, s, w", path=path, column="solar_weights")
+    out = {}
+    for key in "nesw":
+        v = value[key]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not (math.isfinite(v) and 0 <= v <= 4):
+            raise InputError(f"{v!r} is not a façade weight (expected 0..4)", path=path, column=f"solar_weights.{key}")
+        out[key] = float(v)
+    return out
 
 
 def _ground(value, path):

@@ -1,0 +1,111 @@
+"""Façade weights of the solar input from a construction's windows, end to end."""
+
+import json
+import sys
+import tomllib
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pvlib
+import pytest
+
+from thermorc import chain, forecast
+from thermorc.construction import parse_construction, window_facade_weights
+from thermorc.result import CalibrationResult
+
+sys.path.insert(0, str(Path(__file__).parent))
+from test_solar import ALT, LAT, LON, TMY3  # noqa: E402
+
+# An invented box (no real building): windows NE and S with g-values, and a roof light.
+BOX = """
+name = "window-weight box (invented)"
+floor_area_m2 = 60.0
+[air_leakage]
+ach = 0.5
+volume_m3 = 150.0
+[[elements]]
+name = "wall"
+kind = "external_wall"
+area_m2 = 90.0
+  [[elements.layers]]
+  name = "insulation"
+  thickness_m = 0.12
+  conductivity_w_per_mk = 0.04
+  density_kg_per_m3 = 30.0
+  specific_heat_j_per_kgk = 1000.0
+[[elements]]
+name = "north-east window"
+kind = "window"
+area_m2 = 2.0
+orientation = "NE"
+u_value_w_m2k = 1.4
+g_value = 0.5
+[[elements]]
+name = "south window"
+kind = "window"
+area_m2 = 4.0
+orientation = 180
+u_value_w_m2k = 1.4
+g_value = 0.6
+[[elements]]
+name = "roof light"
+kind = "window"
+area_m2 = 1.0
+orientation = "horizontal"
+u_value_w_m2k = 1.4
+g_value = 0.6
+"""
+
+
+def test_weights_share_g_times_area_between_the_facades():
+    # Worked by hand: g A is 1.0 m2 at NE (half to N, half to E) and 2.4 m2 at S; the roof
+    # light is not on a vertical wall. Weights are four times each façade's share.
+    weights = window_facade_weights(parse_construction(tomllib.loads(BOX)))
+    assert weights == pytest.approx({"n": 4 * 0.5 / 3.4, "e": 4 * 0.5 / 3.4, "s": 4 * 2.4 / 3.4, "w": 0.0})
+    assert sum(weights.values()) == pytest.approx(4.0)
+
+
+def test_weighted_vertical_input_is_the_weighted_pvlib_sum():
+    # Reference: pvlib.irradiance.get_total_irradiance (isotropic sky, albedo 0.2 as in
+    # thermorc.solar) on each vertical façade, for one day of pvlib's real Greensboro TMY3.
+    from thermorc.read import read_weather
+
+    w, _ = read_weather(TMY3)
+    day = w.loc["1990-01-15 00:00":"1990-01-15 23:00"]
+    site = {"latitude": LAT, "longitude": LON, "altitude_m": ALT}
+    weights = {"n": 0.5, "e": 0.25, "s": 3.0, "w": 0.25}
+    got = chain.vertical_irradiance(day, site, day, weights=weights)
+    plain = chain.vertical_irradiance(day, site, day)
+    times = day.index + pd.Timedelta(minutes=30)
+    sun = pvlib.solarposition.get_solarposition(times, LAT, LON, ALT)
+    ref = np.zeros(len(day))
+    for face, azimuth in zip("nesw", (0, 90, 180, 270)):
+        poa = pvlib.irradiance.get_total_irradiance(90, azimuth, sun["apparent_zenith"].to_numpy(), sun["azimuth"].to_numpy(),
+                                                    day["dni_w_m2"].to_numpy(), day["ghi_w_m2"].to_numpy(),
+                                                    day["dhi_w_m2"].to_numpy(), albedo=0.2)["poa_global"]
+        ref += weights[face] * np.nan_to_num(np.asarray(poa, dtype=float))
+    np.testing.assert_allclose(got, ref, rtol=1e-6, atol=1e-6)
+    assert not np.allclose(got, plain)
+
+
+def test_calibration_with_a_construction_keeps_the_weights_for_forecasts(tmp_path):
+    # The demo home's construction has windows on four façades: the calibration uses their
+    # weights, RESULT.json keeps them, and a forecast rebuilds the same weighted input.
+    demo = Path(__file__).parents[1] / "weather_demo"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = chain.calibrate_files(demo / "log.csv", tz="America/Chicago", weather=demo / "weather.csv",
+                                       construction=demo / "construction.toml", model="2R2C")
+    from thermorc.construction import read_construction
+
+    assert result.solar_weights == pytest.approx(window_facade_weights(read_construction(demo / "construction.toml")))
+    again = CalibrationResult.from_dict(json.loads(json.dumps(result.to_dict(), default=str)))
+    assert again.solar_weights == result.solar_weights
+    from thermorc.read import read_weather
+
+    weather = read_weather(demo / "weather.csv")[0].iloc[:48]
+    inputs = forecast.model_inputs(again, weather, step_s=3600.0)
+    expected = chain.vertical_irradiance(weather, again.site, weather, weights=again.solar_weights)
+    np.testing.assert_allclose(inputs["solar_w_m2"].to_numpy(), expected, rtol=1e-9, atol=1e-9)
