@@ -17,34 +17,21 @@ from test_estimate import ground_log  # noqa: E402
 
 runner = CliRunner()
 
+
+
+def insulated_element(name, kind, area_m2, thickness_m):
+    """A construction TOML element of one insulation layer (k 0.04 W/(m K); invented)."""
+    return (f'[[elements]]\nname = "{name}"\nkind = "{kind}"\narea_m2 = {area_m2}\n'
+            f'  [[elements.layers]]\n  name = "insulation"\n  thickness_m = {thickness_m}\n'
+            "  conductivity_w_per_mk = 0.04\n  density_kg_per_m3 = 30.0\n  specific_heat_j_per_kgk = 1000.0\n")
+
+
 # An invented box with one ground floor; the U-values are worked by hand below.
-CONSTRUCTION = """
-name = "ground-floor box (invented)"
-floor_area_m2 = 50.0
-[air_leakage]
-ach = 0.5
-volume_m3 = 125.0
-[[elements]]
-name = "wall"
-kind = "external_wall"
-area_m2 = 80.0
-  [[elements.layers]]
-  name = "insulation"
-  thickness_m = 0.10
-  conductivity_w_per_mk = 0.04
-  density_kg_per_m3 = 30.0
-  specific_heat_j_per_kgk = 1000.0
-[[elements]]
-name = "slab on ground"
-kind = "ground_floor"
-area_m2 = 50.0
-  [[elements.layers]]
-  name = "insulation"
-  thickness_m = 0.08
-  conductivity_w_per_mk = 0.04
-  density_kg_per_m3 = 30.0
-  specific_heat_j_per_kgk = 1000.0
-"""
+CONSTRUCTION = (
+    'name = "ground-floor box (invented)"\nfloor_area_m2 = 50.0\n[air_leakage]\nach = 0.5\nvolume_m3 = 125.0\n'
+    + insulated_element("wall", "external_wall", 80.0, 0.10)
+    + insulated_element("slab on ground", "ground_floor", 50.0, 0.08)
+)
 
 
 @pytest.fixture(scope="module")

@@ -16,25 +16,14 @@ from thermorc.construction import parse_construction, window_facade_weights
 from thermorc.result import CalibrationResult
 
 sys.path.insert(0, str(Path(__file__).parent))
+from test_ground import insulated_element  # noqa: E402
 from test_solar import ALT, LAT, LON, TMY3  # noqa: E402
 
 # An invented box (no real building): windows NE and S with g-values, and a roof light.
-BOX = """
-name = "window-weight box (invented)"
-floor_area_m2 = 60.0
-[air_leakage]
-ach = 0.5
-volume_m3 = 150.0
-[[elements]]
-name = "wall"
-kind = "external_wall"
-area_m2 = 90.0
-  [[elements.layers]]
-  name = "insulation"
-  thickness_m = 0.12
-  conductivity_w_per_mk = 0.04
-  density_kg_per_m3 = 30.0
-  specific_heat_j_per_kgk = 1000.0
+BOX = (
+    'name = "window-weight box (invented)"\nfloor_area_m2 = 60.0\n[air_leakage]\nach = 0.5\nvolume_m3 = 150.0\n'
+    + insulated_element("wall", "external_wall", 90.0, 0.12)
+) + """
 [[elements]]
 name = "north-east window"
 kind = "window"
