@@ -265,3 +265,21 @@ def test_report_summary_png_is_readable(demo_report):
     fig.savefig(buffer, format="png")
     assert Image.open(io.BytesIO(buffer.getvalue())).size[0] > 300
     assert "[kWh/day]" in fig.axes[0].get_ylabel() and "[°C]" in fig.axes[0].get_xlabel()
+
+
+def test_every_quantity_of_the_parameter_table_has_its_si_unit():
+    # Units from the names' SI suffixes (DEVELOPERS.md: the unit in the name), the sensor lag
+    # included; "-" only for the unitless share.
+    from thermorc.report import _parameter_table
+    from thermorc.result import CalibrationResult
+
+    result = CalibrationResult(
+        model="2R2C",
+        parameters={"r_indoor_envelope_k_per_w": 0.001, "r_envelope_outdoor_k_per_w": 0.005, "c_indoor_j_per_k": 2e6,
+                    "c_envelope_j_per_k": 3e7, "solar_aperture_m2": 2.0, "solar_to_envelope_share": 0.3,
+                    "internal_gains_w": 250.0, "sensor_time_constant_s": 300.0},
+        heat_loss_coefficient_w_per_k=166.7, time_constants_h=[44.0, 0.5], capacitance_j_per_k=3.2e7,
+    )
+    table = _parameter_table(result).set_index("key")
+    assert table.loc["sensor_time_constant_s", "unit"] == "s"
+    assert (table.drop(index="solar_to_envelope_share")["unit"] != "-").all()

@@ -642,7 +642,7 @@ def _unit_label(name):
     if m:
         return (f"time constant {m.group(1)}", "h", 1.0)
     for suffix, unit, scale in (("_k_per_w", "K/W", 1.0), ("_j_per_k", "MJ/K", 1e-6), ("_m2", "m2", 1.0),
-                                ("_w", "W", 1.0), ("_h", "h", 1.0)):
+                                ("_w", "W", 1.0), ("_h", "h", 1.0), ("_s", "s", 1.0)):
         if name.endswith(suffix):
             return (name[: -len(suffix)].replace("_", " "), unit, scale)
     return (name.replace("_", " "), "-", 1.0)
