@@ -98,3 +98,10 @@ def test_calibration_with_a_construction_keeps_the_weights_for_forecasts(tmp_pat
     inputs = forecast.model_inputs(again, weather, step_s=3600.0)
     expected = chain.vertical_irradiance(weather, again.site, weather, weights=again.solar_weights)
     np.testing.assert_allclose(inputs["solar_w_m2"].to_numpy(), expected, rtol=1e-9, atol=1e-9)
+
+
+def test_a_window_without_g_value_counts_with_the_mean_of_the_others():
+    # Worked by hand: the NE window's g (0.5) dropped, it takes the mean of the given ones
+    # (0.6, the south window's): g A is 1.2 at NE and 2.4 at S.
+    weights = window_facade_weights(parse_construction(tomllib.loads(BOX.replace("g_value = 0.5\n", "", 1))))
+    assert weights == pytest.approx({"n": 4 * 0.6 / 3.6, "e": 4 * 0.6 / 3.6, "s": 4 * 2.4 / 3.6, "w": 0.0})

@@ -1143,7 +1143,8 @@ def window_facade_weights(construction):
     -------
     dict or None
         ``{"n", "e", "s", "w"}`` -> weight, with mean 1: each façade's share of the windows'
-        :math:`g A` (area when no window gives ``g_value``) times four. ``None`` when no
+        :math:`g A` times four (a window without ``g_value`` takes the mean of those given, so
+        area alone decides when none gives one). ``None`` when no
         vertical window has an orientation.
 
     Notes
@@ -1157,11 +1158,13 @@ def window_facade_weights(construction):
     windows = [e for e in construction.elements if e.kind == "window" and e.orientation not in (None, "horizontal")]
     if not windows:
         return None
-    use_g = any(e.g_value is not None for e in windows)
+    given = [e.g_value for e in windows if e.g_value is not None]
+    # A window without a g-value counts with the mean of those given (all alike when none is).
+    g_default = float(np.mean(given)) if given else 1.0
     share = dict.fromkeys("nesw", 0.0)
     for e in windows:
         azimuth = _COMPASS_DEG[e.orientation] if isinstance(e.orientation, str) else float(e.orientation) % 360.0
-        weight = e.area_m2 * ((e.g_value if e.g_value is not None else 0.0) if use_g else 1.0)
+        weight = e.area_m2 * (e.g_value if e.g_value is not None else g_default)
         low = int(azimuth // 90.0) % 4
         frac = (azimuth - 90.0 * (azimuth // 90.0)) / 90.0
         share["nesw"[low]] += weight * (1.0 - frac)

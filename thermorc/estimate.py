@@ -358,12 +358,23 @@ def _ground_path(ground_c, ground_share):
         given, missing = ("ground_c", "ground_share") if ground_share is None else ("ground_share", "ground_c")
         raise InputError(f"{given} (--{given.replace('_', '-')}) needs {missing} (--{missing.replace('_', '-')}) too: "
                          "the ground temperature and the share of the heat loss that goes to it")
-    t, f = float(ground_c), float(ground_share)
+    return {"temperature_c": check_ground_c(ground_c), "share": check_ground_share(ground_share)}
+
+
+def check_ground_c(value):
+    """A plausible ground temperature [°C], or :class:`InputError`."""
+    t = float(value)
     if not (math.isfinite(t) and -30.0 <= t <= 40.0):
-        raise InputError(f"ground temperature (--ground-c) {ground_c!r} °C is not plausible (expected -30..40 °C)")
+        raise InputError(f"ground temperature (--ground-c) {value!r} °C is not plausible (expected -30..40 °C)")
+    return t
+
+
+def check_ground_share(value):
+    """A share of the heat loss to the ground, 0..:data:`MAX_GROUND_SHARE`, or :class:`InputError`."""
+    f = float(value)
     if not (math.isfinite(f) and 0.0 <= f <= MAX_GROUND_SHARE):
-        raise InputError(f"ground share (--ground-share) {ground_share!r} is outside 0..{MAX_GROUND_SHARE:g}")
-    return {"temperature_c": t, "share": f}
+        raise InputError(f"ground share (--ground-share) {value!r} is outside 0..{MAX_GROUND_SHARE:g}")
+    return f
 
 
 # -- start values from the data -----------------------------------------------------------

@@ -383,13 +383,14 @@ def _home_from_record(values, row, key_rows, path, base):
     if "ground_c" in ground and "ground_share" not in ground and paths["construction"] is None:
         raise InputError("ground_c needs ground_share, or a construction with a ground_floor element",
                          **where("ground_c"))
-    from thermorc.estimate import _ground_path
+    from thermorc.estimate import check_ground_c, check_ground_share
 
-    try:
-        _ground_path(ground.get("ground_c"), ground.get("ground_share", 0.0 if "ground_c" in ground else None))
-    except InputError as exc:
-        bad = "ground_c" if "temperature" in exc.message else "ground_share"
-        raise InputError(exc.message, **where(bad)) from None
+    for key, check in (("ground_c", check_ground_c), ("ground_share", check_ground_share)):
+        if key in ground:
+            try:
+                check(ground[key])
+            except InputError as exc:
+                raise InputError(exc.message, **where(key)) from None
     return HomeSpec(
         home_id=home_id, log=paths["log"], partition=partition, column_map=paths["column_map"], site=site,
         weather=paths["weather"], tz=tz, interval=interval, floor_area_m2=area,
@@ -1226,6 +1227,7 @@ class _InOrder:
         while self.head in self.finished:
             yield self.finished.pop(self.head)
             self.head += 1
+
 
 class _DaskPool:
     """An existing Dask distributed cluster, reached through :class:`distributed.Client`."""
