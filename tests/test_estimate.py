@@ -153,6 +153,49 @@ def test_filter_state_recovers_the_hidden_envelope_temperature():
     assert abs(x[0] - states[cut, 0]) < 0.3
 
 
+def _no_noise_log(seed, days):
+    return stochastic_log(seed=seed, days=days, process_sd=(1e-9, 1e-9), meas_sd=1e-6)
+
+
+def test_a_log_that_follows_the_calibration_continues_from_its_final_state():
+    # The next weeks in a file of their own: predict() carries the calibration's final state
+    # on instead of guessing the envelope node, so the prediction equals the one made over the
+    # whole log in one run (the exact discretisation; only the one interval between the files
+    # is bridged with held inputs).
+    log, _, states = _no_noise_log(seed=3, days=21)
+    cut = 14 * 96
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log.iloc[:cut], model="2R2C", energy_metrics=False)
+    assert res.extras["end_state"]["time"] == log.index[cut - 1].isoformat()
+    whole = estimate.predict(res, log)["indoor_c"].to_numpy()[cut:]
+    tail = estimate.predict(res, log.iloc[cut:])
+    assert "continued" in tail.attrs["initial_state"]
+    assert np.max(np.abs(tail["indoor_c"].to_numpy() - whole)) < 0.05
+    assert tail["envelope_c"].iloc[0] == pytest.approx(states[cut, 1], abs=0.1)
+
+
+def test_a_log_the_calibration_never_saw_starts_from_its_first_day_of_readings():
+    # A log from another time: the envelope node is found from the first 24 h of indoor
+    # readings (the response is linear in the initial state), and the rest of the prediction
+    # follows the 2R2C that made the log. The steady state of the first stamp's inputs, the
+    # guess this replaces, puts the envelope 15 K off (measured) while the heater is on.
+    log, net, states = _no_noise_log(seed=4, days=21)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log.iloc[: 10 * 96], model="2R2C", energy_metrics=False)
+    later = log.iloc[14 * 96:]
+    res.extras.pop("end_state")
+    pred = estimate.predict(res, later)
+    assert "first 24 h" in pred.attrs["initial_state"]
+    assert pred["envelope_c"].iloc[0] == pytest.approx(states[14 * 96, 1], abs=0.3)
+    err = later["indoor_c"].to_numpy()[96:] - pred["indoor_c"].to_numpy()[96:]
+    assert np.sqrt(np.mean(err**2)) < 0.05
+    # The guess it replaces: the envelope at the steady state of the first stamp's inputs.
+    guess = simulate(net, estimate._model_inputs(res, later)[1], x0=None, interval_means=False)
+    assert abs(guess.temperatures_c["envelope"].iloc[0] - states[14 * 96, 1]) > 1.0
+
+
 def test_data_that_cannot_identify_a_model_is_refused():
     index = pd.date_range("2025-01-01", periods=10 * 288, freq="5min", tz="UTC")
     flat = pd.DataFrame({"indoor_c": 20.0, "heating_w": np.tile([0.0, 3000.0], 5 * 288), "outdoor_c": 0.0}, index=index)

@@ -972,11 +972,9 @@ def _slow_mode_covariance(jacobian, residuals, rho):
 
     Output-error residuals of an RC model are measurement noise plus the response of the
     network to heat it does not see; that response decays with the network's slowest time
-    constant :math:`	au`, so between residual blocks of length :math:`\Delta` it is an AR(1)
-    process with :math:`
-ho = e^{-\Delta/	au}`. The residual covariance is then
-    :math:`\Sigma = \sigma_w^2 I + c R`, :math:`R_{ij} = 
-ho^{|i-j|}`, with :math:`c` fitted to
+    constant :math:`\tau`, so between residual blocks of length :math:`\Delta` it is an AR(1)
+    process with :math:`\rho = e^{-\Delta/\tau}`. The residual covariance is then
+    :math:`\Sigma = \sigma_w^2 I + c R`, :math:`R_{ij} = \rho^{|i-j|}`, with :math:`c` fitted to
     unbiased quadratic moments of the residuals. The covariance of the least-squares estimate is the
     sandwich :math:`(J^TJ)^{-1} J^T \Sigma J (J^TJ)^{-1}` (the textbook form for least squares
     with correlated errors: e.g. W. H. Greene, Econometric Analysis, 5th ed., ch. 10 and 12;
@@ -1453,6 +1451,7 @@ def calibrate(
                 "seconds": _time.perf_counter() - started,
                 "initial_states": {n_: v for n_, v in layout.values(theta).items() if n_.startswith("x0_")},
             },
+            "end_state": _end_state(net, data, states),
             "data": {
                 "start": data.index[0].isoformat(),
                 "end": data.index[-1].isoformat(),
@@ -1465,6 +1464,15 @@ def calibrate(
     result._residuals = pd.Series(resid_series, index=data.index, name="residual_k")
     result._modelled = pd.Series(yhat, index=data.index, name="indoor_model_c")
     return result
+
+
+def _end_state(net, data, states):
+    """The model's node temperatures at the last stamp of the data (for predictions that go on)."""
+    last = data.segments[-1].stop - 1
+    row = states[last]
+    if not np.all(np.isfinite(row)):
+        return None
+    return {"time": data.index[last].isoformat(), "nodes": dict(zip(net.state_space().states, map(float, row)))}
 
 
 def _energy_metrics(layout, theta, data, n_params):
@@ -1548,7 +1556,7 @@ def filter_state(result: CalibrationResult, history):
     history (R. E. Kalman, "A new approach to linear filtering and prediction problems,"
     J. Basic Eng., vol. 82, no. 1, pp. 35-45, 1960). Noise levels follow the calibration's
     fit: each mode is given the stationary variance of the residuals,
-    :math:`q_j = 2\,\mathrm{RMSE}^2/	au_j`, and the reading the variance of a 0.1 °C display,
+    :math:`q_j = 2\,\mathrm{RMSE}^2/\tau_j`, and the reading the variance of a 0.1 °C display,
     at least (common practice).
 
     Parameters
@@ -1595,6 +1603,91 @@ def filter_state(result: CalibrationResult, history):
     return ad @ last + (b0 + b1) @ u[-1]
 
 
+#: Longest gap between the end of the calibration data and a log's first stamp over which
+#: :func:`predict` carries the calibration's final state on. [s]
+CONTINUE_GAP_S = 24 * 3600.0
+#: Hours of a log's measured indoor temperature from which :func:`predict` estimates the
+#: hidden nodes' initial temperatures when it cannot continue the calibration. [h]
+WARMUP_H = 24.0
+
+
+def _continued_state(result, net, inputs, frame):
+    """The calibration's final state carried to the log's first stamp, or None."""
+    end = result.extras.get("end_state") or {}
+    space = net.state_space()
+    try:
+        gap_s = (frame.index[0] - pd.Timestamp(end["time"])).total_seconds()
+        x_end = np.array([float(end["nodes"][s]) for s in space.states])
+    except (KeyError, TypeError, ValueError):
+        return None
+    if not 0 < gap_s <= CONTINUE_GAP_S or not np.all(np.isfinite(x_end)):
+        return None
+    # Over the gap the inputs are taken as the log's first row, held: the exact solution
+    # x(g) = x_ss + exp(A g) (x_end - x_ss).
+    import scipy.linalg
+
+    from thermorc.simulate import steady_state
+
+    x_ss = steady_state(net, inputs.iloc[0].to_numpy(dtype=float))
+    x0 = x_ss + scipy.linalg.expm(space.a * gap_s) @ (x_end - x_ss)
+    first = frame["indoor_c"].iloc[0] if "indoor_c" in frame.columns else np.nan
+    if np.isfinite(first):
+        x0[0] = first
+    return x0
+
+
+def _warmup_state(net, inputs, frame, step_s, lag_s, warmup_h=WARMUP_H, prior_sd_k=3.0, reading_sd_k=0.2):
+    """
+    Initial node temperatures for a log the calibration did not see.
+
+    The hidden nodes are not measured. Their start is the least-squares fit of the model's
+    indoor reading to the measured indoor temperature over the first ``warmup_h`` hours, the
+    response being linear in the initial state, with a Gaussian prior (``prior_sd_k``) at the
+    steady state the first day's mean inputs give with the indoor node held at its first
+    reading (a ridge regression; A. E. Hoerl and R. W. Kennard, Technometrics 12(1), 1970).
+
+    Returns
+    -------
+    x0 : numpy.ndarray
+        Initial node temperatures. [°C]
+    note : str
+        How they were found.
+    """
+    from thermorc.simulate import simulate
+
+    space = net.state_space()
+    u = inputs.to_numpy(dtype=float)
+    n_w = max(2, min(len(u), int(round(warmup_h * 3600.0 / step_s)) + 1))
+    y = frame["indoor_c"].to_numpy(dtype=float)[:n_w] if "indoor_c" in frame.columns else np.full(n_w, np.nan)
+    seen = np.isfinite(y)
+    u_mean = np.nanmean(u[:n_w], axis=0)
+    k = space.k_reduced_w_per_k
+    rhs = space.e_reduced @ u_mean
+    prior = np.linalg.solve(k, rhs)
+    if not seen.any():
+        return prior, "steady state of the first day's mean inputs (no indoor reading)"
+    first = y[seen][0]
+    prior[0] = first
+    if len(prior) > 1:
+        # The hidden nodes at steady state with the indoor node held at its first reading.
+        prior[1:] = np.linalg.solve(k[1:, 1:], rhs[1:] - k[1:, 0] * first)
+    if seen.sum() < 3 or len(prior) == 1:
+        return prior, "indoor node at its first reading, the others at steady state"
+    window = inputs.iloc[:n_w]
+    forced = simulate(net, window, x0=np.zeros(len(prior)), interval_means=False).temperatures_c.iloc[:, 0].to_numpy()
+    zero = window * 0.0
+    basis = np.column_stack([
+        simulate(net, zero, x0=np.eye(len(prior))[j], interval_means=False).temperatures_c.iloc[:, 0].to_numpy()
+        for j in range(len(prior))])
+    forced = sensed_temperature(forced, step_s, lag_s)
+    basis = sensed_temperature(basis, step_s, lag_s)
+    a = np.vstack([basis[seen] / reading_sd_k, np.eye(len(prior)) / prior_sd_k])
+    b = np.concatenate([(y[seen] - forced[seen]) / reading_sd_k, prior / prior_sd_k])
+    x0 = np.linalg.lstsq(a, b, rcond=None)[0]
+    hours = (seen.nonzero()[0][-1]) * step_s / 3600.0
+    return x0, f"hidden nodes fitted to the first {hours:.0f} h of indoor readings"
+
+
 def predict(result: CalibrationResult, log, x0=None):
     """
     Open-loop prediction of indoor temperature from a log's heating and weather.
@@ -1618,7 +1711,7 @@ def predict(result: CalibrationResult, log, x0=None):
         sensor lag, when there is one, and then also ``indoor_node_c``) and every other
         node's temperature (``<node>_c``) at each stamp. [°C]
     """
-    from thermorc.simulate import simulate, steady_state
+    from thermorc.simulate import simulate
 
     frame = getattr(log, "data", log)
     net, inputs = _model_inputs(result, frame)
@@ -1629,19 +1722,20 @@ def predict(result: CalibrationResult, log, x0=None):
         hidden = [fitted.get(f"x0_{node}_segment0") for node in net.state_space().states[1:]]
         if all(v is not None for v in hidden):
             x0 = np.array([frame["indoor_c"].iloc[0], *hidden])
+    start_note = "given" if x0 is not None else "fitted at the calibration's start"
     if x0 is None:
-        x0 = steady_state(net, inputs.iloc[0][list(net.inputs)].to_numpy())
-        if "indoor_c" in frame.columns and np.isfinite(frame["indoor_c"]).any():
-            first = frame["indoor_c"].dropna().iloc[0]
-            shift = first - x0[0]
-            x0 = x0 + shift * np.array([1.0] + [0.5] * (len(x0) - 1))
+        x0 = _continued_state(result, net, inputs, frame)
+        start_note = "continued from the end of the calibration data"
+    lag = float(result.parameters.get(SENSOR_PARAMETER, 0.0))
+    step = float(np.median(np.diff(frame.index.as_unit("ns").asi8)) / 1e9) if len(frame) > 1 else result.step_s
+    if x0 is None:
+        x0, start_note = _warmup_state(net, inputs, frame, step, lag)
     sim = simulate(net, inputs, x0=x0, interval_means=False)
     out = sim.temperatures_c.add_suffix("_c")
-    lag = float(result.parameters.get(SENSOR_PARAMETER, 0.0))
+    out.attrs["initial_state"] = start_note
     if lag > 0:
         # The log's sensor reads the indoor node through its lag; keep the node as well.
         out = out.rename(columns={"indoor_c": "indoor_node_c"})
-        step = float(np.median(np.diff(frame.index.as_unit("ns").asi8)) / 1e9) if len(frame) > 1 else result.step_s
         out.insert(0, "indoor_c", sensed_temperature(out["indoor_node_c"].to_numpy(), step, lag))
     else:
         out.insert(0, "indoor_model_c", out["indoor_c"])

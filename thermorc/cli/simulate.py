@@ -34,3 +34,5 @@ def simulate(
     if not quiet:
         fit = f"; RMSE against the measured indoor temperature {rmse:.2f} K" if rmse == rmse else ""
         out_console.print(f"wrote {out} ({len(frame)} rows){fit}", markup=False)
+        if frame.attrs.get("initial_state"):
+            out_console.print(f"initial node temperatures: {frame.attrs['initial_state']}", markup=False)
