@@ -453,7 +453,7 @@ def calibrate_files(
     return result
 
 
-def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None, site=None):
+def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None, site=None, interval=None):
     """
     Open-loop prediction of a log's indoor temperature from a RESULT.json.
 
@@ -463,7 +463,7 @@ def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None
         RESULT.json from a calibration.
     log_path : str or os.PathLike
         Log with measured heating (and weather, or give ``weather``).
-    column_map, tz, weather, site : optional
+    column_map, tz, weather, site, interval : optional
         As for :func:`prepare_log`.
 
     Returns
@@ -481,8 +481,8 @@ def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None
     if isinstance(site, str):
         site = parse_site(site)
     site = site or ({k: result.site[k] for k in ("latitude", "longitude") if k in result.site} or None)
-    prepared = prepare_log(log_path, column_map=column_map, tz=tz, weather_path=weather, site=site, step_s=result.step_s,
-                           solar_weights=result.solar_weights or None)
+    prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site,
+                           step_s=result.step_s, solar_weights=result.solar_weights or None)
     frame = prepared.data
     pred = predict(result, frame)
     pred["indoor_measured_c"] = frame["indoor_c"]

@@ -35,6 +35,7 @@ References
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import math
 import time as _time
@@ -51,6 +52,7 @@ from threadpoolctl import ThreadpoolController
 from thermorc import diagnose
 from thermorc.errors import (
     ConvergenceWarning,
+    DataQualityWarning,
     FitQualityWarning,
     IdentifiabilityWarning,
     InputError,
@@ -340,6 +342,51 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
     if tau < 0.2 * data.step_s or with_lag >= without:
         tau = 0.0
     return {"time_constant_s": tau, "fitted": True, "rmse_without_k": without, "rmse_with_k": with_lag}
+
+
+#: A fit with the heating one step earlier must lower the sample error by this share before
+#: thermorc says the log's powers look labelled at the end of their interval (our choice: on
+#: the synthetic fine homes, 16 correctly labelled logs came out 1.5-87 % worse when
+#: advanced, the same logs end-labelled 2-55 % better).
+TIMING_MARGIN = 0.05
+
+
+def heating_timing_check(model, data: CalibrationData, gains, theta_rc, sensor):
+    """
+    Whether the log's heating looks labelled at the end of its interval instead of the start.
+
+    Parameters
+    ----------
+    model, data, gains, theta_rc
+        As for :func:`fit_sensor_lag`.
+    sensor : dict
+        :func:`fit_sensor_lag`'s result on the data as given.
+
+    Returns
+    -------
+    dict
+        Empty when the step is coarser than :data:`SENSOR_MAX_STEP_S`; else
+        ``rmse_as_given_k`` and ``rmse_one_step_earlier_k`` (sample-by-sample RMSE of the
+        lag fit with the heating as given and advanced by one step) [K], and ``looks_ending``
+        (bool).
+
+    Notes
+    -----
+    thermorc reads a power as the mean over the interval that starts at its stamp. A logger
+    that stamps the energy since the previous reading puts every value one step late, and at
+    steps of minutes the model then sees the room warm before the heater starts; a lag cannot
+    mend that (it would have to be negative). The two labels are told apart by fitting both.
+    """
+    if not sensor.get("fitted") or data.step_s > SENSOR_MAX_STEP_S:
+        return {}
+    u = data.u.copy()
+    for seg in data.segments:
+        u[seg.start:seg.stop - 1, 1] = data.u[seg.start + 1:seg.stop, 1]
+    advanced = fit_sensor_lag(model, dataclasses.replace(data, u=u), gains, theta_rc)
+    given_k = sensor["rmse_with_k"] if sensor["time_constant_s"] > 0 else sensor["rmse_without_k"]
+    earlier_k = advanced["rmse_with_k"] if advanced["time_constant_s"] > 0 else advanced["rmse_without_k"]
+    return {"rmse_as_given_k": given_k, "rmse_one_step_earlier_k": earlier_k,
+            "looks_ending": bool(earlier_k < (1.0 - TIMING_MARGIN) * given_k)}
 
 
 def _ground_split(ground, ua_w_per_k):
@@ -1215,6 +1262,7 @@ def calibrate(
     if method == "output_error" and not _screen:
         n_rc = len(PRESETS[model].parameters)
         sensor = fit_sensor_lag(model, data, gains, sol.x[:n_rc])
+        sensor["heating_timing"] = heating_timing_check(model, data, gains, sol.x[:n_rc], sensor)
         if sensor["time_constant_s"] > 0:
             # The hourly fit again, reading the model through the lag: a lag left out biases
             # the indoor capacity and the gains (tests/test_estimate.py).
@@ -1369,6 +1417,14 @@ def calibrate(
     for w in result_warnings:
         if "converg" not in w:
             warnings.warn(w, IdentifiabilityWarning, stacklevel=2)
+    timing = sensor.get("heating_timing") or {}
+    if timing.get("looks_ending"):
+        msg = (f"the heating looks labelled at the end of its interval: the fit is "
+               f"{100 * (1 - timing['rmse_one_step_earlier_k'] / timing['rmse_as_given_k']):.0f} % better with every value "
+               "one step earlier. If the logger stamps the energy since its previous reading, calibrate again with "
+               "--interval end (or [time] interval = \"end\" in the column map)")
+        result_warnings.append(msg)
+        warnings.warn(msg, DataQualityWarning, stacklevel=2)
     temp = diagnose.temperature_fit_metrics(data.y[observed], yhat[observed])
     n_params = k + (1 if sensor["time_constant_s"] > 0 else 0)  # the lag counts in Guideline 14's n - p
     fit = {
@@ -1620,7 +1676,7 @@ def _continued_state(result, net, inputs, frame):
         x_end = np.array([float(end["nodes"][s]) for s in space.states])
     except (KeyError, TypeError, ValueError):
         return None
-    if not 0 < gap_s <= CONTINUE_GAP_S or not np.all(np.isfinite(x_end)):
+    if not 0 <= gap_s <= CONTINUE_GAP_S or not np.all(np.isfinite(x_end)):
         return None
     # Over the gap the inputs are taken as the log's first row, held: the exact solution
     # x(g) = x_ss + exp(A g) (x_end - x_ss).
