@@ -180,10 +180,16 @@ def prepare_log(
             notes.append(msg)
         else:
             notes.append("no irradiance and no site: solar gains are not modelled (give --site LAT,LON or --weather)")
-    if "ghi_w_m2" in frame.columns and frame["ghi_w_m2"].notna().any() and "latitude" in site and "longitude" in site:
+    has_ghi = "ghi_w_m2" in frame.columns and frame["ghi_w_m2"].notna().any()
+    if has_ghi and "latitude" in site and "longitude" in site:
         frame[SOLAR_COLUMN] = vertical_irradiance(frame, site, weather_on_grid, weights=solar_weights)
         notes.append("solar gains follow the irradiance on the four vertical façades (pvlib transposition)"
                      + (", weighted by the construction's windows" if solar_weights else ""))
+    elif has_ghi:
+        msg = ("the site is not known, so solar gains follow the horizontal irradiance, which tracks the sun through "
+               "windows poorly in winter; give --site LAT,LON for the sum over the four vertical façades")
+        warnings.warn(msg, DataQualityWarning, stacklevel=2)
+        notes.append(msg)
     aligned.data = frame
     # The gap mask covers the columns added here too.
     aligned.gap_mask = frame.isna().any(axis=1)
