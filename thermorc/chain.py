@@ -321,6 +321,24 @@ def provenance(**paths):
     return {"thermorc_version": __version__, "inputs": inputs}
 
 
+def _test_cut(index, test_days, log_path):
+    """First row of the held-out tail of ``test_days`` days, checked."""
+    _check_test_days(test_days)
+    span_days = (index[-1] - index[0]).total_seconds() / 86400.0
+    if test_days >= span_days:
+        raise InputError(f"--test-days {test_days:g} leaves nothing to calibrate on: the log covers "
+                         f"{span_days:.1f} days", path=str(log_path))
+    cut = int(index.searchsorted(index[-1] - pd.Timedelta(days=test_days), side="right"))
+    if len(index) - cut < 2:
+        raise InputError(f"--test-days {test_days:g} keeps fewer than two rows back", path=str(log_path))
+    return cut
+
+
+def _check_test_days(test_days):
+    if test_days is not None and not (np.isfinite(test_days) and test_days > 0):
+        raise InputError(f"--test-days {test_days:g} is not allowed (expected a positive number of days)")
+
+
 def calibrate_files(
     log_path,
     column_map=None,
@@ -338,6 +356,8 @@ def calibrate_files(
     table_sha256=None,
     ground_c=None,
     ground_share=None,
+    method="output_error",
+    test_days=None,
 ):
     """
     Calibrate from files: read, align, add weather and sun, fit, judge against a construction.
@@ -376,6 +396,11 @@ def calibrate_files(
     ground_share : float, optional
         That share of the heat loss coefficient; default with ``ground_c``: the
         construction's ``ground_floor`` U A over its whole UA.
+    method : {'output_error', 'prediction_error'}
+        Estimator (see :func:`thermorc.estimate.calibrate`).
+    test_days : float, optional
+        Keep the last days of the log back: the model is fitted to the rest and the result's
+        ``validation`` says how it predicts them (:func:`thermorc.estimate.validate`).
 
     Returns
     -------
@@ -412,6 +437,7 @@ def calibrate_files(
         share_note = (f"ground share {ground_share:.3f} = the construction's ground-floor U A "
                       f"{ua['ground_ua_w_per_k']:.1f} W/K over its UA {ua['ua_w_per_k']:.1f} W/K")
     estimate._ground_path(ground_c, ground_share)  # checked before the log is read
+    _check_test_days(test_days)
     weights = None
     if built is not None:
         from thermorc.construction import window_facade_weights
@@ -426,6 +452,12 @@ def calibrate_files(
     data = estimate.calibration_data(prepared.aligned, solar_column=solar, path=str(log_path), ground_c=ground_c,
                                      ground_share=ground_share)
     data.notes.extend(prepared.notes + ([share_note] if share_note else []))
+    test_frame = None
+    if test_days is not None:
+        cut = _test_cut(prepared.data.index, test_days, log_path)
+        test_frame = prepared.data.iloc[cut:]
+        data = data.subset(cut)
+        data.notes.append(f"the last {test_days:g} days ({test_frame.index[0].isoformat()} on) kept back for validation")
     spinner = contextlib.nullcontext()
     if progress:
         from rich.console import Console
@@ -433,9 +465,12 @@ def calibrate_files(
         spinner = Console(stderr=True).status("fitting the model", spinner="dots")
     with spinner:
         if model == "auto":
-            result = estimate.calibrate_auto(data, gains=gains, path=str(log_path), ua_prior=ua_prior)
+            result = estimate.calibrate_auto(data, gains=gains, path=str(log_path), ua_prior=ua_prior, method=method)
         else:
-            result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path), ua_prior=ua_prior)
+            result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path), ua_prior=ua_prior,
+                                        method=method)
+        if test_frame is not None:
+            result.extras["validation"] = estimate.validate(result, test_frame)
     result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
     if weights and result.solar_input == SOLAR_COLUMN:
         result.solar_weights = weights

@@ -1533,29 +1533,41 @@ def _end_state(net, data, states):
 
 def _energy_metrics(layout, theta, data, n_params):
     """Heat the model needs to follow the measured indoor temperature, against the meter."""
-    net = layout.network(theta)
-    space = net.state_space()
     gains = layout.gains_series(theta)
-    heating = list(space.inputs).index("heating_w")
+    pieces = []
+    for seg in data.segments:
+        u = data.u[seg].copy()
+        u[:, 3] += gains[seg]
+        pieces.append((data.index[seg], u, data.y[seg]))
+    return _follow_metrics(layout.network(theta), "heating_w", pieces, data.step_s, n_params)
+
+
+def _follow_metrics(net, heating_name, pieces, step_s, n_params):
+    """
+    Guideline 14 metrics of the heat an ideal heater needs to make the model follow the log.
+
+    ``pieces`` are ``(index, u, y)`` runs: the network's inputs (measured heating in the
+    heating column, NaN where not metered) and the measured indoor temperature.
+    """
+    space = net.state_space()
+    heating = list(space.inputs).index(heating_name)
     measured, modelled = [], []
     index_parts = []
-    for seg in data.segments:
-        if seg.stop - seg.start < 3:
-            continue
-        y = data.y[seg]
+    for index, u, y in pieces:
         seen = np.isfinite(y)
+        if seen.sum() < 3:
+            continue
         rows = np.arange(y.size)
         # The heater follows the measured temperature, interpolated over unread rows.
         y = np.interp(rows, rows[seen], y[seen])
-        u = data.u[seg].copy()
-        u[:, heating] = 0.0
-        u[:, 3] += gains[seg]
-        x_start = _setpoint_steady_state(net, space, u[0], y[0], 0, heating, np.inf)
-        heat, _ = heater_power(space, u, y, data.step_s, x_start, 0, heating, allow_cooling=True)
+        free = u.copy()
+        free[:, heating] = 0.0
+        x_start = _setpoint_steady_state(net, space, free[0], y[0], 0, heating, np.inf)
+        heat, _ = heater_power(space, free, y, step_s, x_start, 0, heating, allow_cooling=True)
         # Rows where the indoor temperature was interpolated are left out of the comparison.
-        measured.append(np.where(seen, data.u[seg, 1], np.nan))
+        measured.append(np.where(seen, u[:, heating], np.nan))
         modelled.append(np.where(seen, heat, np.nan))
-        index_parts.append(data.index[seg])
+        index_parts.append(index)
     if not measured:
         return {}
     index = index_parts[0].append(index_parts[1:]) if len(index_parts) > 1 else index_parts[0]
@@ -1563,6 +1575,56 @@ def _energy_metrics(layout, theta, data, n_params):
         return diagnose.energy_fit_metrics(np.concatenate(measured), np.concatenate(modelled), index, n_params=n_params)
     except ValueError as exc:
         return {"note": str(exc)}
+
+
+def validate(result: CalibrationResult, log):
+    """
+    How a calibration does on data it was not fitted to: temperature and heating energy.
+
+    Parameters
+    ----------
+    result : CalibrationResult
+        A calibration.
+    log : thermorc.align.AlignedData or pandas.DataFrame
+        Uniform grid as for :func:`predict`, with the measured ``indoor_c`` and ``heating_w``.
+
+    Returns
+    -------
+    dict
+        ``start``, ``end`` (ISO stamps), ``initial_state`` (how :func:`predict` started the
+        hidden nodes), ``n_samples``, ``rmse_k``, ``bias_k`` (measured minus modelled) and
+        ``max_abs_error_k`` of the open-loop indoor temperature [K]; ``energy``: ASHRAE
+        Guideline 14 metrics of the heat the model needs to follow the measured temperature
+        against the metered heating (as in the calibration's ``energy_fit``), with
+        ``cv_rmse_pct`` and ``nmbe_pct`` of the hourly figures copied to the top. [%]
+
+    References
+    ----------
+    .. [1] ASHRAE, Guideline 14-2014: Measurement of Energy, Demand, and Water Savings
+       (CV(RMSE), NMBE and their thresholds).
+    """
+    frame = getattr(log, "data", log)
+    pred = predict(result, frame)
+    y = frame["indoor_c"].to_numpy(dtype=float)
+    temp = diagnose.temperature_fit_metrics(y, pred["indoor_c"].to_numpy())
+    net, inputs = _model_inputs(result, frame)
+    u = inputs.to_numpy(dtype=float)
+    u[:, list(net.inputs).index("heating_w")] = frame["heating_w"].to_numpy(dtype=float)
+    energy = _follow_metrics(net, "heating_w", [(frame.index, u, y)], result.step_s,
+                             int(result.fit.get("n_params") or 1))
+    hourly = energy.get("hourly", {})
+    return {
+        "start": frame.index[0].isoformat(),
+        "end": frame.index[-1].isoformat(),
+        "initial_state": pred.attrs.get("initial_state"),
+        "n_samples": temp["n"],
+        "rmse_k": temp["rmse_k"],
+        "bias_k": temp["bias_k"],
+        "max_abs_error_k": temp["max_abs_k"],
+        "cv_rmse_pct": hourly.get("cv_rmse_pct", math.nan),
+        "nmbe_pct": hourly.get("nmbe_pct", math.nan),
+        "energy": energy,
+    }
 
 
 def _check_identifiable(data: CalibrationData, model, path):
@@ -1801,7 +1863,7 @@ def predict(result: CalibrationResult, log, x0=None):
 
 @_one_blas_thread
 def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, path=None, models=MODEL_ORDER,
-                   ua_prior=None):
+                   ua_prior=None, method="output_error"):
     """
     Fit the presets, compare them and keep the simplest adequate one.
 
@@ -1821,6 +1883,9 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         Candidates, simplest first.
     ua_prior : tuple of float, optional
         ``(ua_w_per_k, relative_sd)``, passed to every fit (see :func:`calibrate`).
+    method : {'output_error', 'prediction_error'}
+        Estimator of the final fit (see :func:`calibrate`); the candidates are compared by
+        output error, on their open-loop prediction of the held-out tail.
 
     Returns
     -------
@@ -1898,7 +1963,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     start = fitted[chosen].parameters
     # Refit on all data, starting from the training fit.
     final = calibrate(
-        data, model=chosen, gains=gains, path=path, ua_prior=ua_prior,
+        data, model=chosen, gains=gains, path=path, ua_prior=ua_prior, method=method,
         previous={**start, "_ua": fitted[chosen].heat_loss_coefficient_w_per_k, "_tau": fitted[chosen].time_constants_h[0] * 3600},
     )
     final.extras["model_comparison"] = {

@@ -397,6 +397,15 @@ class CalibrationResult:
                     f"                        hourly heating energy CV(RMSE) {cv:.1f} % (limit 30 %), NMBE {nmbe:+.1f} % "
                     f"(limit ±10 %): {verdict} ASHRAE Guideline 14"
                 )
+        val = self.extras.get("validation")
+        if isinstance(val, dict) and isinstance(val.get("rmse_k"), (int, float)):
+            lines.append(
+                f"validation              {str(val.get('start', '?'))[:16]} on, not fitted: indoor temperature RMSE "
+                f"{val['rmse_k']:.3f} K, bias {val.get('bias_k', math.nan):+.3f} K, {val.get('n_samples', 0)} samples"
+            )
+            cv, nmbe = val.get("cv_rmse_pct"), val.get("nmbe_pct")
+            if isinstance(cv, float) and math.isfinite(cv) and isinstance(nmbe, float) and math.isfinite(nmbe):
+                lines.append(f"                        hourly heating energy CV(RMSE) {cv:.1f} %, NMBE {nmbe:+.1f} %")
         return "\n".join(lines)
 
 

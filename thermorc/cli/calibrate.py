@@ -23,6 +23,11 @@ class ModelChoice(str, enum.Enum):
     auto = "auto"
 
 
+class EstimatorChoice(str, enum.Enum):
+    output_error = "output-error"
+    prediction_error = "prediction-error"
+
+
 class GainsChoice(str, enum.Enum):
     constant = "constant"
     day_night = "day-night"
@@ -46,6 +51,8 @@ def calibrate(
     ground_share: Annotated[Optional[float], typer.Option("--ground-share", help="Share of the heat loss that goes to the ground (0..0.9); default: from the construction's ground_floor elements.", rich_help_panel="Inputs")] = None,
     model: Annotated[ModelChoice, typer.Option("--model", help="RC model, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
     gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant, or a day (07-23 h) and a night value.", rich_help_panel="Model")] = GainsChoice.constant,
+    estimator: Annotated[EstimatorChoice, typer.Option("--estimator", help="Output error (least squares on the open-loop indoor temperature) or prediction error (Kalman-filter likelihood).", rich_help_panel="Model")] = EstimatorChoice.output_error,
+    test_days: Annotated[Optional[float], typer.Option("--test-days", help="Keep the log's last days back and report how the model predicts them (validation in RESULT.json).", rich_help_panel="Model")] = None,
     step_min: Annotated[Optional[float], typer.Option("--step-min", min=1.0, max=180.0, help="Model step \\[min]; default: the log's own step.", rich_help_panel="Model")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print RESULT.json to stdout as well.", rich_help_panel="Output")] = False,
     quiet: Annotated[bool, typer.Option("--quiet", help="Print nothing but warnings and errors.", rich_help_panel="Output")] = False,
@@ -57,7 +64,7 @@ def calibrate(
         log, column_map=column_map, tz=tz, interval=interval.value if interval else None, weather=weather,
         site=site, construction=construction, model=model.value, gains=gains.value.replace("-", "_"),
         step_s=step_min * 60.0 if step_min else None, progress=not quiet and not as_json, ground_c=ground_c,
-        ground_share=ground_share,
+        ground_share=ground_share, method=estimator.value.replace("-", "_"), test_days=test_days,
     )
     body = result.to_dict()
     write_json(out, body)
