@@ -196,6 +196,17 @@ def test_a_log_the_calibration_never_saw_starts_from_its_first_day_of_readings()
     assert abs(guess.temperatures_c["envelope"].iloc[0] - states[14 * 96, 1]) > 1.0
 
 
+def test_heating_share_is_the_metered_part_of_the_heat_that_enters():
+    # A hand-worked balance: 600 W of heating, 2 m2 x 100 W/m2 of sun and 150 W of unlogged
+    # plus 50 W of logged gains: 600 / 1000 of the heat is metered.
+    index = pd.date_range("2025-01-01", periods=96, freq="15min", tz="UTC")
+    frame = pd.DataFrame({"indoor_c": 20.0, "heating_w": np.tile([1200.0, 0.0], 48), "outdoor_c": 0.0,
+                          "ghi_w_m2": 100.0, "internal_gains_w": 50.0}, index=index)
+    data = estimate.calibration_data(frame)
+    share = estimate.heating_share(data, {"solar_aperture_m2": 2.0}, np.full(96, 150.0))
+    assert share == pytest.approx(0.6, rel=1e-12)
+
+
 def test_data_that_cannot_identify_a_model_is_refused():
     index = pd.date_range("2025-01-01", periods=10 * 288, freq="5min", tz="UTC")
     flat = pd.DataFrame({"indoor_c": 20.0, "heating_w": np.tile([0.0, 3000.0], 5 * 288), "outdoor_c": 0.0}, index=index)
