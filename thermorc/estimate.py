@@ -1439,6 +1439,7 @@ def calibrate(
         [n_ for n_ in names if not n_.startswith("internal")],
     )
     result_warnings += diagnose.bound_warnings(theta[: layout.n_physical], lower[: layout.n_physical], upper[: layout.n_physical], names)
+    share = heating_share(data, physical, layout.gains_series(theta))
     if not _screen:
         derived_names = ["heat_loss_coefficient_w_per_k", "time_constant_1_h"]
         result_warnings += diagnose.interval_warnings(
@@ -1453,7 +1454,6 @@ def calibrate(
                 f"The slowest time constant ({slow_h:.0f} h) is longer than the record ({record_h:.0f} h): the data "
                 "do not determine it (a lower limit at best). Use a longer log, or one with night setbacks or "
                 "periods with the heating off.")
-        share = heating_share(data, physical, layout.gains_series(theta))
         if share < MIN_HEATING_SHARE:
             result_warnings.append(
                 f"The measured heating supplied only {100 * share:.0f} % of the heat over the record (the sun and the "
@@ -1554,7 +1554,7 @@ def calibrate(
                 "initial_states": {n_: v for n_, v in layout.values(theta).items() if n_.startswith("x0_")},
             },
             "end_state": _end_state(net, data, states),
-            "heating_share": heating_share(data, physical, layout.gains_series(theta)),
+            "heating_share": share,
             "data": {
                 "start": data.index[0].isoformat(),
                 "end": data.index[-1].isoformat(),
@@ -1866,8 +1866,12 @@ def predict(result: CalibrationResult, log, x0=None):
         [W m⁻²], ``internal_gains_w`` [W] and ``indoor_c`` [°C] (its first value starts the
         indoor node).
     x0 : array_like, optional
-        Initial node temperatures [°C]; default: the first measured indoor temperature for
-        the indoor node and the steady state of the others.
+        Initial node temperatures [°C]. Default: the indoor node at its first reading and
+        the hidden nodes at the calibration's fitted start when the log starts where the
+        calibration did, carried on from the calibration's final state (``end_state``) when
+        the log starts within :data:`CONTINUE_GAP_S` after it, and otherwise fitted to the
+        log's first :data:`WARMUP_H` hours of indoor readings. The returned frame's
+        ``attrs["initial_state"]`` says which.
 
     Returns
     -------
