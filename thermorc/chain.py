@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from thermorc.align import AlignedData, align, align_weather
-from thermorc.errors import DataQualityWarning, InputError
+from thermorc.errors import DataQualityWarning, FitQualityWarning, InputError
 from thermorc.read import _sniff_weather, check_file, read_log, read_weather
 
 __all__ = ["PreparedLog", "prepare_log", "parse_site", "calibrate_files", "simulate_files", "vertical_irradiance"]
@@ -471,6 +471,7 @@ def calibrate_files(
                                         method=method)
         if test_frame is not None:
             result.extras["validation"] = estimate.validate(result, test_frame)
+            result.warnings.extend(result.extras["validation"]["warnings"])
     result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
     if weights and result.solar_input == SOLAR_COLUMN:
         result.solar_weights = weights
@@ -515,7 +516,7 @@ def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None
     rmse_k : float
         RMSE of the prediction against the measured indoor temperature. [K]
     """
-    from thermorc.estimate import predict
+    from thermorc.estimate import extrapolation_warning, log_heating_share, predict
     from thermorc.result import CalibrationResult
 
     result = CalibrationResult.from_json(result_path)
@@ -526,6 +527,9 @@ def simulate_files(result_path, log_path, column_map=None, tz=None, weather=None
                            step_s=result.step_s, solar_weights=result.solar_weights or None)
     frame = prepared.data
     pred = predict(result, frame)
+    caution = extrapolation_warning(result, log_heating_share(result, frame))
+    if caution:
+        warnings.warn(caution, FitQualityWarning, stacklevel=2)
     pred["indoor_measured_c"] = frame["indoor_c"]
     pred.index.name = "time"
     err = (frame["indoor_c"] - pred["indoor_c"]).dropna()

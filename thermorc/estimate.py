@@ -1624,6 +1624,53 @@ def _follow_metrics(net, heating_name, pieces, step_s, n_params):
         return {"note": str(exc)}
 
 
+def log_heating_share(result: CalibrationResult, log):
+    """
+    Share of the heat entering the home that a log's metered heating supplied, by a calibration.
+
+    Parameters
+    ----------
+    result : CalibrationResult
+    log : thermorc.align.AlignedData or pandas.DataFrame
+        As for :func:`predict`.
+
+    Returns
+    -------
+    float
+        As :func:`heating_share`, with the calibrated aperture and gains. [unitless]
+    """
+    frame = getattr(log, "data", log)
+    _, inputs = _model_inputs(result, frame)
+    heat = float(np.nanmean(frame["heating_w"].to_numpy(dtype=float)))
+    sun = float(result.parameters.get("solar_aperture_m2", 0.0)) * float(inputs["solar_w_m2"].mean())
+    total = heat + sun + float(inputs["internal_w"].mean())
+    return heat / total if total > 0 else math.nan
+
+
+def extrapolation_warning(result: CalibrationResult, share):
+    """
+    A caution when a log leans on sun and gains far more than the calibration data did.
+
+    Parameters
+    ----------
+    result : CalibrationResult
+    share : float
+        :func:`log_heating_share` of the log.
+
+    Returns
+    -------
+    str or None
+        The caution, or None when the log is within what the calibration saw.
+    """
+    fitted = result.extras.get("heating_share")
+    if not isinstance(fitted, (int, float)) or not share < min(MIN_HEATING_SHARE, 0.75 * fitted):
+        return None
+    return (f"In this log the metered heating supplied {100 * share:.0f} % of the heat (the sun and the unlogged "
+            f"gains, as calibrated, the rest) against {100 * fitted:.0f} % in the calibration data: the model runs "
+            "where it was not fitted, and errors in how it shares heat between sun and gains show more, so expect "
+            "a larger error than the calibration's.")
+
+
 def validate(result: CalibrationResult, log):
     """
     How a calibration does on data it was not fitted to: temperature and heating energy.
@@ -1660,8 +1707,14 @@ def validate(result: CalibrationResult, log):
     energy = _follow_metrics(net, "heating_w", [(frame.index, u, y)], result.step_s,
                              int(result.fit.get("n_params") or 1))
     hourly = energy.get("hourly", {})
+    share = log_heating_share(result, frame)
+    caution = extrapolation_warning(result, share)
+    if caution:
+        warnings.warn(caution, FitQualityWarning, stacklevel=2)
     return {
         "start": frame.index[0].isoformat(),
+        "heating_share": share,
+        "warnings": [caution] if caution else [],
         "end": frame.index[-1].isoformat(),
         "initial_state": pred.attrs.get("initial_state"),
         "n_samples": temp["n"],
