@@ -48,7 +48,8 @@ def test_the_last_days_are_kept_back_and_predicted(log_csv, tmp_path):
 
 
 @pytest.mark.parametrize("days, words", [("0", "positive"), ("21", "leaves nothing to calibrate on"),
-                                         ("-3", "positive")])
+                                         ("-3", "positive"), ("nan", "positive"), ("inf", "positive"),
+                                         ("0.0001", "fewer than two rows")])
 def test_a_test_period_that_leaves_no_fit_is_refused(log_csv, tmp_path, days, words):
     out = tmp_path / "RESULT.json"
     r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--test-days", days, "--out", str(out)])
