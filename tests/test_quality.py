@@ -44,6 +44,17 @@ def test_three_weeks_with_setbacks_support_3r2c():
     assert "up to 3R2C" in report.verdict
 
 
+def test_a_log_the_heating_hardly_ran_in_is_flagged():
+    # The heater on for 3 of 96 quarter-hours a day: about 3 % of the time, under the 5 %
+    # below which the report says the heat loss coefficient may not be identifiable.
+    log = synthetic(14)
+    assert not any("heating ran only" in f for f in quality.inspect_log(align(log, 900)).flags)
+    rows = np.arange(len(log)) % 96
+    sparse = log.assign(heating_w=np.where(rows < 3, 6000.0, 0.0))
+    flags = [f for f in quality.inspect_log(align(sparse, 900)).flags if "heating ran only" in f]
+    assert len(flags) == 1 and "3.1 %" in flags[0]
+
+
 def test_one_week_supports_2r2c_but_not_3r2c():
     report = quality.inspect_log(align(synthetic(8), 900))
     assert report.supported == ["1R1C", "2R2C"]

@@ -41,6 +41,10 @@ FREE_FLOAT_S = 2 * 3600.0
 # Heating counts as "on" above this fraction of its 99th-percentile power, or 50 W (common
 # practice: standby draw and pilot lights are not heating).
 ON_FRACTION = 0.05
+#: Duty cycle below which the report warns that the heating did too little of the heating to
+#: give UA its scale (our choice; the calibration's own test is the heating share of the heat,
+#: docs/calibration.md).
+LOW_DUTY = 0.05
 
 
 @dataclasses.dataclass
@@ -223,7 +227,10 @@ def inspect_log(frame_or_aligned, step_s=None, has_weather=False):
         free_float={"count": int(long_off.sum()), "hours": float(f_len_s[long_off].sum() / 3600.0),
                     "longest_h": float(f_len_s.max() / 3600.0) if f_len_s.size else 0.0},
         excitation=excitation,
-        flags=list(al.flags),
+        flags=list(al.flags) + ([
+            f"the heating ran only {100 * duty:.1f} % of the time: with so little metered heat the sun and the "
+            "occupants did most of the heating, and the heat loss coefficient may not be identifiable; a colder "
+            "stretch of log is better"] if hv.size and duty < LOW_DUTY else []),
         notes=list(al.notes),
         supported=supported,
         verdict=verdict,
