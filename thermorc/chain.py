@@ -322,8 +322,7 @@ def provenance(**paths):
 
 
 def _test_cut(index, test_days, log_path):
-    """First row of the held-out tail of ``test_days`` days, checked."""
-    _check_test_days(test_days)
+    """First row of the held-out tail of ``test_days`` days (checked by :func:`_check_test_days`)."""
     span_days = (index[-1] - index[0]).total_seconds() / 86400.0
     if test_days >= span_days:
         raise InputError(f"--test-days {test_days:g} leaves nothing to calibrate on: the log covers "

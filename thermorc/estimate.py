@@ -421,11 +421,14 @@ def heating_share(data: CalibrationData, physical, gains_w):
     smaller their share, the more UA depends on the split the fit makes between sun and gains.
     """
     inside = np.concatenate([np.arange(s.start, s.stop) for s in data.segments])
-    heat = float(np.nanmean(data.u[inside, 1]))
-    sun = float(physical.get("solar_aperture_m2", 0.0)) * float(np.nanmean(data.u[inside, 2]))
-    other = float(np.nanmean(np.asarray(gains_w)[inside] + data.u[inside, 3]))
-    total = heat + sun + other
-    return heat / total if total > 0 else math.nan
+    return _share(np.nanmean(data.u[inside, 1]), physical.get("solar_aperture_m2", 0.0) * np.nanmean(data.u[inside, 2]),
+                  np.nanmean(np.asarray(gains_w)[inside] + data.u[inside, 3]))
+
+
+def _share(heat_w, sun_w, other_w):
+    """Metered heating over all the heat that enters; NaN when nothing enters."""
+    total = float(heat_w) + float(sun_w) + float(other_w)
+    return float(heat_w) / total if total > 0 else math.nan
 
 
 def _ground_split(ground, ua_w_per_k):
@@ -1641,10 +1644,8 @@ def log_heating_share(result: CalibrationResult, log):
     """
     frame = getattr(log, "data", log)
     _, inputs = _model_inputs(result, frame)
-    heat = float(np.nanmean(frame["heating_w"].to_numpy(dtype=float)))
-    sun = float(result.parameters.get("solar_aperture_m2", 0.0)) * float(inputs["solar_w_m2"].mean())
-    total = heat + sun + float(inputs["internal_w"].mean())
-    return heat / total if total > 0 else math.nan
+    return _share(np.nanmean(frame["heating_w"].to_numpy(dtype=float)),
+                  result.parameters.get("solar_aperture_m2", 0.0) * inputs["solar_w_m2"].mean(), inputs["internal_w"].mean())
 
 
 def extrapolation_warning(result: CalibrationResult, share):
