@@ -1,5 +1,7 @@
 """Uniform grid, gap mask, segments, spikes and stuck sensors; weather alignment."""
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -76,6 +78,23 @@ def test_stuck_sensor_is_flagged_when_heating_changes():
     with pytest.warns(DataQualityWarning, match="stuck"):
         al = align(f, 900)
     assert al.stuck and al.stuck[0]["column"] == "indoor_c" and al.stuck[0]["hours"] >= 12
+
+
+def test_a_coarse_reading_may_hold_one_value_longer_before_it_counts_as_stuck():
+    # A thermostat that reports whole degrees Fahrenheit (steps of 5/9 K) holds one reading
+    # for hours while the heating cycles; the 6 h limit grows with the step (to 16.7 h here).
+    f = frame(192, "15min")
+    whole_f = np.round(f["indoor_c"] * 9 / 5 + 32 + 3 * np.sin(np.arange(192) / 7))
+    f["indoor_c"] = (whole_f - 32) * 5 / 9
+    f.iloc[10:50, 0] = f.iloc[10, 0]  # 10 h at one reading
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", DataQualityWarning)
+        al = align(f, 900)
+    assert not al.stuck
+    f.iloc[10:100, 0] = f.iloc[10, 0]  # 22.5 h
+    with pytest.warns(DataQualityWarning, match="stuck"):
+        al = align(f, 900)
+    assert al.stuck[0]["hours"] >= 22
 
 
 def test_align_refuses_bad_frames():

@@ -33,6 +33,10 @@ SPIKE_THRESHOLDS_K = {"indoor_c": 3.0, "outdoor_c": 8.0, "setpoint_c": 100.0}
 # A temperature that does not change at all for this long while the heating changes is a
 # stuck sensor or a stale value repeated by the logger (common practice).
 STUCK_S = 6 * 3600.0
+# ... for a reading with steps of this size or finer; a coarser reading (whole degrees
+# Fahrenheit, a weather feed in whole kelvin) holds one value longer in proportion, so the
+# time scales with its step (thermorc's own rule).
+STUCK_RESOLUTION_K = 0.2
 
 
 @dataclasses.dataclass
@@ -238,6 +242,11 @@ def _stuck_runs(t_s, v, heat, min_s):
         return []
     idx = np.flatnonzero(ok)
     vv = v[idx]
+    steps = np.abs(np.diff(vv))
+    steps = steps[steps > 1e-9]
+    if steps.size:
+        # The reading's resolution: the size of its smallest common steps.
+        min_s = min_s * max(1.0, float(np.percentile(steps, 5)) / STUCK_RESOLUTION_K)
     change = np.concatenate([[True], vv[1:] != vv[:-1]])
     starts = np.flatnonzero(change)
     ends = np.concatenate([starts[1:] - 1, [vv.size - 1]])
