@@ -38,9 +38,9 @@ def test_the_last_days_are_kept_back_and_predicted(log_csv, tmp_path):
     assert body["fit"]["n_samples"] == 14 * 96
     assert val["n_samples"] == 7 * 96
     assert val["initial_state"] == "continued from the end of the calibration data"
-    # The model that made the data predicts a week it did not see to about the noise: the
-    # 0.05 K reading noise plus the drift the process noise adds over a week (analytic bound
-    # of the kind in check-values.md sec. 9 is loose; 0.2 K is a common-practice margin).
+    # The data come from a known 2R2C (simulate-and-fit): its prediction of a week it did not
+    # see errs by the 0.05 K reading noise plus the drift its process noise adds over a week.
+    # 0.2 K is our margin over that (common practice, no source).
     assert 0.04 < val["rmse_k"] < 0.2
     assert abs(val["bias_k"]) < 0.15
     # Guideline 14 energy figures of the week, hourly, as in the fit's own.
