@@ -30,6 +30,7 @@ from thermorc.errors import InputError
 from thermorc.fleet import (
     RESULT_COLUMNS,
     calibrate_home,
+    flatten_result,
     input_fingerprint,
     journal_path,
     lock_path,
@@ -154,6 +155,8 @@ def test_manifest_csv_rows_and_paths(fleet_dir):
     ("id,log,ground_c,ground_share\nh1,a.csv,warm,0.1\n", "homes.csv, row 2, column 'ground_c'"),
     ("id,log,ground_c\nh1,a.csv,9\n", "homes.csv, row 2, column 'ground_c'"),
     ("id,log,ground_share\nh1,a.csv,0.1\n", "homes.csv, row 2, column 'ground_share'"),
+    ("id,log,window_areas\nh1,a.csv,S=8;E\n", "homes.csv, row 2, column 'window_areas'"),
+    ("id,log,window_areas\nh1,a.csv,S=-2\n", "homes.csv, row 2, column 'window_areas'"),
 ])
 def test_manifest_csv_errors_name_row_and_column(tmp_path, body, where):
     path = tmp_path / "homes.csv"
@@ -585,23 +588,32 @@ def test_rows_come_back_in_input_order_with_a_bounded_window():
     assert out == list(range(40))
 
 
-def test_a_ground_in_the_manifest_reaches_the_calibration(fleet_dir, tmp_path):
-    # The same home with and without a ground: the row is calibrate_files' result with the
-    # ground, and only the home with the ground gets a new fingerprint.
+@pytest.mark.parametrize("header, cells, fields, options, column", [
+    ("ground_c,ground_share", ("9", "0.2"), {"ground_c": 9.0, "ground_share": 0.2},
+     {"ground_c": 9.0, "ground_share": 0.2}, "ua_w_per_k"),
+    # The façade weights change the solar input, so the aperture moves.
+    ("window_areas", ("S=8;E=1;W=1;N=2",), {"window_areas": "S=8;E=1;W=1;N=2"},
+     {"window_areas": "S=8,E=1,W=1,N=2"}, "solar_aperture_m2"),
+])
+def test_a_manifest_option_reaches_the_calibration(fleet_dir, tmp_path, header, cells, fields, options, column):
+    # The same home with and without the option: the row is calibrate_files' result with it,
+    # and only the home with it gets a new fingerprint.
     root, _ = fleet_dir
     manifest = tmp_path / "homes.csv"
     log = root / "logs" / "h1.csv"
-    manifest.write_text(f"id,log,site,ground_c,ground_share\nplain,{log},\"{SITE}\",,\ng,{log},\"{SITE}\",9,0.2\n")
+    empty = "," * (len(cells) - 1)
+    manifest.write_text(f"id,log,site,{header}\nplain,{log},\"{SITE}\",{empty}\nx,{log},\"{SITE}\",{','.join(cells)}\n")
     homes = read_manifest(manifest)
-    assert homes[0].ground_c is None and (homes[1].ground_c, homes[1].ground_share) == (9.0, 0.2)
+    assert all(getattr(homes[0], k) is None for k in fields)
+    assert {k: getattr(homes[1], k) for k in fields} == fields
     assert input_fingerprint(homes[0], model="2R2C") == input_fingerprint(
-        read_manifest(root / "homes.csv")[0].__class__(home_id="plain", log=str(log), site=SITE), model="2R2C")
+        homes[0].__class__(home_id="plain", log=str(log), site=SITE), model="2R2C")
     assert input_fingerprint(homes[1], model="2R2C") != input_fingerprint(homes[0], model="2R2C")
     out = tmp_path / "R.parquet"
     run_fleet(manifest, out, workers=1, model="2R2C")
     rows = pd.read_parquet(out).set_index("home_id")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        single = calibrate_files(log, site=SITE, model="2R2C", ground_c=9.0, ground_share=0.2)
-    assert rows.loc["g", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
-    assert rows.loc["g", "ua_w_per_k"] != pytest.approx(rows.loc["plain", "ua_w_per_k"], rel=1e-3)
+        single = flatten_result(calibrate_files(log, site=SITE, model="2R2C", **options), homes[1], "2R2C")
+    assert rows.loc["x", column] == pytest.approx(single[column], rel=1e-9)
+    assert rows.loc["x", column] != pytest.approx(rows.loc["plain", column], rel=1e-3)

@@ -134,12 +134,23 @@ def test_example_home_file_reads():
     ({"log": {"file": "log.csv"}, "floor_area_m2": -3}, "floor_area_m2", "out of range"),
     ({"log": {"file": "log.csv"}, "site": {"latitude": 45.0}}, "site.longitude", "both"),
     ({"log": {"file": "log.csv", "tz": "Mars/Olympus"}}, "log.tz", "time zone"),
+    ({"log": {"file": "log.csv"}, "window_areas": {"S": -1}}, "window_areas", "0 m2 or more"),
+    ({"log": {"file": "log.csv"}, "window_areas": "S=8,E"}, "window_areas", "FACING=AREA"),
 ])
 def test_bad_home_files_name_the_key(data, column, match):
     path = str(DEMO / "home.toml")  # not read: only its folder anchors the relative paths
     with pytest.raises(InputError, match=match) as info:
         parse_home(data, path=path)
     assert info.value.column == column
+
+
+def test_window_areas_of_a_home_file_as_a_table_or_a_text():
+    path = str(DEMO / "home.toml")
+    table = parse_home({"log": {"file": "log.csv"}, "window_areas": {"S": 8, "E": 3, "W": 3, "N": 4}}, path=path)
+    text = parse_home({"log": {"file": "log.csv"}, "window_areas": "S=8,E=3,W=3,N=4"}, path=path)
+    from thermorc.chain import parse_window_areas
+
+    assert parse_window_areas(table.window_areas) == parse_window_areas(text.window_areas)
 
 
 # -- the whole report on the invented demo home ----------------------------------------------

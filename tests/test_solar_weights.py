@@ -105,3 +105,42 @@ def test_a_window_without_g_value_counts_with_the_mean_of_the_others():
     # (0.6, the south window's): g A is 1.2 at NE and 2.4 at S.
     weights = window_facade_weights(parse_construction(tomllib.loads(BOX.replace("g_value = 0.5\n", "", 1))))
     assert weights == pytest.approx({"n": 4 * 0.6 / 3.6, "e": 4 * 0.6 / 3.6, "s": 4 * 2.4 / 3.6, "w": 0.0})
+
+
+def test_window_areas_from_the_command_line_weight_like_the_hand_worked_shares():
+    # Worked by hand: 8 + 3 + 3 + 4 = 18 m2, each façade's weight is 4 x its share.
+    assert chain.parse_window_areas("S=8,E=3,W=3,N=4") == pytest.approx(
+        {"n": 16 / 18, "e": 12 / 18, "s": 32 / 18, "w": 12 / 18})
+    # A window at SE is shared half and half; one at azimuth 200 deg goes 20/90 of the way
+    # from south to west; windows of one façade add up.
+    assert chain.parse_window_areas("se=2, 200=9, S=1") == pytest.approx(
+        {"n": 0.0, "e": 4 * 1 / 12, "s": 4 * (1 + 7 + 1) / 12, "w": 4 * 2 / 12})
+
+
+@pytest.mark.parametrize("text", ["S=8,E", "S=-1", "X=3", "S=0,N=0", "S=nan", "S=inf", ""])
+def test_bad_window_areas_are_refused_before_the_log_is_read(text):
+    from thermorc.errors import InputError
+
+    with pytest.raises(InputError, match="window-areas"):
+        chain.calibrate_files("no-such-log.csv", window_areas=text)
+
+
+def test_calibration_with_window_areas_keeps_their_weights(tmp_path):
+    # The demo home: the window areas given on the command line weight the solar input in
+    # place of the plain sum, and RESULT.json keeps them for simulate and forecast.
+    from typer.testing import CliRunner
+
+    from thermorc.cli import app
+
+    demo = Path(__file__).parents[1] / "weather_demo"
+    out = tmp_path / "r.json"
+    run = CliRunner().invoke(app, ["calibrate", str(demo / "log.csv"), "--weather", str(demo / "weather.csv"),
+                                   "--model", "2R2C", "--window-areas", "S=8,E=3,W=3,N=4", "--out", str(out)])
+    assert run.exit_code == 0, run.output
+    body = json.loads(out.read_text())
+    assert body["solar_weights"] == pytest.approx(chain.parse_window_areas("S=8,E=3,W=3,N=4"))
+    assert any("weighted by the window areas given" in note for note in body["data"]["notes"])
+    bad = CliRunner().invoke(app, ["calibrate", str(demo / "log.csv"), "--window-areas", "S=8,E", "--out",
+                                   str(tmp_path / "bad.json")])
+    assert bad.exit_code == 2 and not (tmp_path / "bad.json").exists()
+    assert "--window-areas part 'E'" in bad.output

@@ -19,7 +19,7 @@ from thermorc.align import AlignedData, align, align_weather
 from thermorc.errors import DataQualityWarning, FitQualityWarning, InputError
 from thermorc.read import _sniff_weather, check_file, read_log, read_weather
 
-__all__ = ["PreparedLog", "prepare_log", "parse_site", "calibrate_files", "simulate_files", "vertical_irradiance"]
+__all__ = ["PreparedLog", "prepare_log", "parse_site", "parse_window_areas", "calibrate_files", "simulate_files", "vertical_irradiance"]
 
 #: Solar input of calibrated models when the site is known: the sum of the irradiance on the
 #: four vertical façades. [W m⁻²]
@@ -82,6 +82,50 @@ def parse_site(text):
     return {"latitude": lat, "longitude": lon}
 
 
+def parse_window_areas(text):
+    """
+    Read the glazing area per façade from the command line, as façade weights of the solar input.
+
+    Parameters
+    ----------
+    text : str
+        ``FACING=AREA`` pairs separated by commas (or semicolons, handy in a CSV cell), e.g.
+        ``"S=8,E=3,W=3,N=4"``: a compass point
+        (N, NE, E, SE, S, SW, W, NW) or an azimuth clockwise from north [deg], and the window
+        area facing it [m²]. Windows of one façade may be added up or given one by one.
+
+    Returns
+    -------
+    dict
+        ``{"n", "e", "s", "w"}`` -> weight with mean 1, each façade's share of the area times
+        four (:func:`thermorc.construction.facade_weights`).
+
+    Notes
+    -----
+    The weights count area alone: all windows are taken to transmit alike. A construction with
+    ``g_value`` per window weights by :math:`g A` instead.
+    """
+    from thermorc.construction import _COMPASS_DEG, facade_weights
+
+    windows = []
+    for part in str(text).replace(";", ",").split(","):
+        facing, sep, area_s = part.partition("=")
+        facing = facing.strip().upper()
+        try:
+            azimuth = _COMPASS_DEG[facing] if facing in _COMPASS_DEG else float(facing)
+            area = float(area_s)
+        except ValueError:
+            raise InputError(f"--window-areas part {part.strip()!r} is not FACING=AREA (e.g. S=8: a compass point "
+                             "or an azimuth in degrees, and m2 of window)") from None
+        if not sep or not (np.isfinite(azimuth) and np.isfinite(area)) or area < 0:
+            raise InputError(f"--window-areas part {part.strip()!r} is not FACING=AREA with an area of 0 m2 or more")
+        windows.append((azimuth, area))
+    weights = facade_weights(windows)
+    if weights is None:
+        raise InputError(f"--window-areas {text!r} adds up to no window area")
+    return weights
+
+
 def prepare_log(
     log_path,
     column_map=None,
@@ -93,6 +137,7 @@ def prepare_log(
     *,
     table=None,
     solar_weights=None,
+    weights_from="the construction's windows",
 ):
     """
     Read a log, put it on a uniform grid, and fill outdoor temperature and irradiance.
@@ -120,6 +165,8 @@ def prepare_log(
         only names the log.
     solar_weights : dict, optional
         Façade weights of the solar input (see :func:`vertical_irradiance`).
+    weights_from : str
+        Where the weights came from, for the notes.
 
     Returns
     -------
@@ -184,7 +231,7 @@ def prepare_log(
     if has_ghi and "latitude" in site and "longitude" in site:
         frame[SOLAR_COLUMN] = vertical_irradiance(frame, site, weather_on_grid, weights=solar_weights)
         notes.append("solar gains follow the irradiance on the four vertical façades (pvlib transposition)"
-                     + (", weighted by the construction's windows" if solar_weights else ""))
+                     + (f", weighted by {weights_from}" if solar_weights else ""))
     elif has_ghi:
         msg = ("the site is not known, so solar gains follow the horizontal irradiance, which tracks the sun through "
                "windows poorly in winter; give --site LAT,LON for the sum over the four vertical façades")
@@ -357,6 +404,7 @@ def calibrate_files(
     ground_share=None,
     method="output_error",
     test_days=None,
+    window_areas=None,
 ):
     """
     Calibrate from files: read, align, add weather and sun, fit, judge against a construction.
@@ -373,7 +421,7 @@ def calibrate_files(
         ``"LAT,LON"`` or a dict with ``latitude`` and ``longitude``.
     construction : str or os.PathLike, optional
         Construction TOML (docs/constructions.md): the result reports how the calibrated UA
-        and capacity compare with it.
+        and capacity compare with it, and its windows weight the façades of the solar input.
     model : {'1R1C', '2R2C', '3R2C', 'auto'}
         Preset, or ``auto`` to compare all three.
     gains : {'constant', 'day_night'}
@@ -400,6 +448,10 @@ def calibrate_files(
     test_days : float, optional
         Keep the last days of the log back: the model is fitted to the rest and the result's
         ``validation`` says how it predicts them (:func:`thermorc.estimate.validate`).
+    window_areas : str or dict, optional
+        Window area per façade [m²], ``"S=8,E=3,W=3,N=4"`` or ``{"S": 8, "E": 3, ...}``
+        (:func:`parse_window_areas`): they weight the façades of the solar input, in place of
+        a construction's windows.
 
     Returns
     -------
@@ -437,13 +489,19 @@ def calibrate_files(
                       f"{ua['ground_ua_w_per_k']:.1f} W/K over its UA {ua['ua_w_per_k']:.1f} W/K")
     estimate._ground_path(ground_c, ground_share)  # checked before the log is read
     _check_test_days(test_days)
-    weights = None
-    if built is not None:
+    weights = weights_from = None
+    if window_areas is not None:
+        if isinstance(window_areas, dict):
+            window_areas = ",".join(f"{facing}={area}" for facing, area in window_areas.items())
+        weights = parse_window_areas(window_areas)
+        weights_from = "the window areas given"
+    elif built is not None:
         from thermorc.construction import window_facade_weights
 
         weights = window_facade_weights(built)
+        weights_from = "the construction's windows"
     prepared = prepare_log(log_path, column_map=column_map, tz=tz, interval=interval, weather_path=weather, site=site,
-                           step_s=step_s, table=table, solar_weights=weights)
+                           step_s=step_s, table=table, solar_weights=weights, weights_from=weights_from)
     report = quality.inspect_log(prepared.aligned, has_weather=weather is not None)
     if model != "auto":
         quality.require_model(report, model, path=str(log_path))

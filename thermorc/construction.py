@@ -46,6 +46,7 @@ __all__ = [
     "LUMPED_BIOT_LIMIT",
     "ELEMENT_KINDS",
     "window_facade_weights",
+    "facade_weights",
     "Material",
     "Layer",
     "Element",
@@ -1161,10 +1162,33 @@ def window_facade_weights(construction):
     given = [e.g_value for e in windows if e.g_value is not None]
     # A window without a g-value counts with the mean of those given (all alike when none is).
     g_default = float(np.mean(given)) if given else 1.0
+    return facade_weights(
+        (_COMPASS_DEG[e.orientation] if isinstance(e.orientation, str) else float(e.orientation),
+         e.area_m2 * (e.g_value if e.g_value is not None else g_default))
+        for e in windows
+    )
+
+
+def facade_weights(windows):
+    """
+    Weights of the four façades in the solar input, from windows given by azimuth and size.
+
+    Parameters
+    ----------
+    windows : iterable of (float, float)
+        ``(azimuth_deg, weight)`` per window: azimuth clockwise from north [deg], weight its
+        :math:`g A` or area [m²].
+
+    Returns
+    -------
+    dict or None
+        ``{"n", "e", "s", "w"}`` -> weight with mean 1; a window between two compass points is
+        shared between its two neighbouring façades in proportion to the angle. ``None`` when
+        the weights add up to nothing.
+    """
     share = dict.fromkeys("nesw", 0.0)
-    for e in windows:
-        azimuth = _COMPASS_DEG[e.orientation] if isinstance(e.orientation, str) else float(e.orientation) % 360.0
-        weight = e.area_m2 * (e.g_value if e.g_value is not None else g_default)
+    for azimuth, weight in windows:
+        azimuth = float(azimuth) % 360.0
         low = int(azimuth // 90.0) % 4
         frac = (azimuth - 90.0 * (azimuth // 90.0)) / 90.0
         share["nesw"[low]] += weight * (1.0 - frac)

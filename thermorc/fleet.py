@@ -65,7 +65,7 @@ __all__ = [
 #: Manifest columns (CSV header names, TOML keys). ``id`` and ``log`` are required.
 MANIFEST_COLUMNS = (
     "id", "log", "partition", "column_map", "site", "weather", "tz", "interval", "floor_area_m2",
-    "construction", "ground_c", "ground_share",
+    "construction", "ground_c", "ground_share", "window_areas",
 )
 _PATH_COLUMNS = ("log", "column_map", "weather", "construction")
 _MODELS = ("1R1C", "2R2C", "3R2C", "auto")
@@ -160,6 +160,9 @@ class HomeSpec:
     ground_c, ground_share : float or None
         Ground temperature [°C] and the share of the heat loss that goes to it (see
         :func:`thermorc.chain.calibrate_files`); the share may come from the construction.
+    window_areas : str or None
+        Window area per façade, ``"S=8,E=3,W=3,N=4"`` [m²] (``;`` may join the pairs too):
+        weights the façades of the solar input (:func:`thermorc.chain.parse_window_areas`).
     manifest : str
         The manifest file, for messages.
     row : int or None
@@ -178,6 +181,7 @@ class HomeSpec:
     construction: str | None = None
     ground_c: float | None = None
     ground_share: float | None = None
+    window_areas: str | None = None
     manifest: str | None = None
     row: int | None = None
 
@@ -325,7 +329,7 @@ def _text(values, key, where):
 
 
 def _home_from_record(values, row, key_rows, path, base):
-    from thermorc.chain import parse_site
+    from thermorc.chain import parse_site, parse_window_areas
     from thermorc.read import zone
 
     def where(key):
@@ -391,11 +395,17 @@ def _home_from_record(values, row, key_rows, path, base):
                 check(ground[key])
             except InputError as exc:
                 raise InputError(exc.message, **where(key)) from None
+    window_areas = _text(values, "window_areas", where)
+    if window_areas is not None:
+        try:
+            parse_window_areas(window_areas)
+        except InputError as exc:
+            raise InputError(exc.message.replace("--window-areas", "window_areas"), **where("window_areas")) from None
     return HomeSpec(
         home_id=home_id, log=paths["log"], partition=partition, column_map=paths["column_map"], site=site,
         weather=paths["weather"], tz=tz, interval=interval, floor_area_m2=area,
         construction=paths["construction"], ground_c=ground.get("ground_c"), ground_share=ground.get("ground_share"),
-        manifest=path, row=row,
+        window_areas=window_areas, manifest=path, row=row,
     )
 
 
@@ -626,6 +636,7 @@ def calibrate_home(home, model="auto", gains="constant"):
                 log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
                 site=home.site, construction=home.construction, model=model, gains=gains, table=table,
                 table_sha256=digest, ground_c=home.ground_c, ground_share=home.ground_share,
+                window_areas=home.window_areas,
             )
         row = flatten_result(result, home, model)
         data_warns = [_one_line(w.message) for w in caught if issubclass(w.category, ThermorcWarning)]
@@ -724,7 +735,7 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
         hive-partitioned dataset the files of the home's partition folder; for any other
         dataset, all its files), column map, weather and construction files, each as its
         SHA-256; the manifest fields ``partition``, ``site``, ``tz``, ``interval`` and
-        ``floor_area_m2`` (and ``ground_c``, ``ground_share`` when given); ``model``, ``gains``
+        ``floor_area_m2`` (and ``ground_c``, ``ground_share``, ``window_areas`` when given); ``model``, ``gains``
         and the recipe version. File paths count
         only through their content, so moving the data keeps rows current.
 
@@ -760,7 +771,8 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
         "gains": gains,
     }
     # Only when given, so that the fingerprints of homes without a ground stay as they were.
-    record.update({k: getattr(home, k) for k in ("ground_c", "ground_share") if getattr(home, k) is not None})
+    record.update({k: getattr(home, k) for k in ("ground_c", "ground_share", "window_areas")
+                   if getattr(home, k) is not None})
     text = json.dumps(record, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(text.encode()).hexdigest()
 

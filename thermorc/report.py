@@ -92,7 +92,7 @@ REPORT_CAUTIONS = (
 )
 
 _HOME_KEYS = {"name", "floor_area_m2", "log", "weather", "site", "construction", "schedule", "strategies", "model",
-              "description"}
+              "description", "window_areas"}
 _LOG_KEYS = {"file", "column_map", "tz", "interval"}
 _SITE_KEYS = {"name", "latitude", "longitude", "altitude_m", "tz", "file"}
 _MODEL_KEYS = {"preset", "gains", "step_min", "result"}
@@ -130,6 +130,9 @@ class HomeFile:
         Construction TOML, thermostat program TOML, setback strategies TOML.
     floor_area_m2 : float or None
         Heated floor area. [m²]
+    window_areas : str or None
+        Window area per façade, ``"S=8,E=3,W=3,N=4"`` [m²]: weights the façades of the solar
+        input (:func:`thermorc.chain.parse_window_areas`).
     preset : str
         ``'1R1C'``, ``'2R2C'``, ``'3R2C'`` or ``'auto'``.
     gains : str
@@ -152,6 +155,7 @@ class HomeFile:
     schedule: str | None = None
     strategies: str | None = None
     floor_area_m2: float | None = None
+    window_areas: str | None = None
     preset: str = "auto"
     gains: str = "constant"
     step_s: float | None = None
@@ -307,6 +311,18 @@ def parse_home(data, path):
             zone(tz, path)
         except InputError as exc:
             raise exc.located(column="log.tz" if log.get("tz") else "site.tz") from None
+    window_areas = data.get("window_areas")
+    if window_areas is not None:
+        from thermorc.chain import parse_window_areas
+
+        if isinstance(window_areas, dict):
+            window_areas = ",".join(f"{facing}={area}" for facing, area in window_areas.items())
+        try:
+            parse_window_areas(str(window_areas))
+        except InputError as exc:
+            raise InputError(exc.message.replace("--window-areas", "window_areas"), path=path,
+                             column="window_areas") from None
+        window_areas = str(window_areas)
     home = HomeFile(
         path=path,
         name=_text(data.get("name"), path, "name") or os.path.splitext(os.path.basename(path))[0],
@@ -320,6 +336,7 @@ def parse_home(data, path):
         schedule=_file(data.get("schedule"), path, "schedule"),
         strategies=_file(data.get("strategies"), path, "strategies"),
         floor_area_m2=_number(data.get("floor_area_m2"), path, "floor_area_m2", 1.0, 1e5, "m2"),
+        window_areas=window_areas,
         preset=preset,
         gains=gains,
         step_s=None if step_min is None else step_min * 60.0,
@@ -743,7 +760,7 @@ def _calibrate(home, progress):
     return calibrate_files(
         home.log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
         site=home.site if "latitude" in home.site else None, construction=home.construction,
-        model=home.preset, gains=home.gains, step_s=home.step_s,
+        model=home.preset, gains=home.gains, step_s=home.step_s, window_areas=home.window_areas,
     )
 
 
@@ -789,6 +806,10 @@ def build_report(home, month, result=None, progress=None):
     # The log's solar input with the façade weights the model was (or will be) calibrated with.
     if result is not None:
         weights = result.solar_weights or None
+    elif home.window_areas is not None:
+        from thermorc.chain import parse_window_areas
+
+        weights = parse_window_areas(home.window_areas)
     elif home.construction is not None:
         from thermorc.construction import read_construction, window_facade_weights
 

@@ -47,6 +47,7 @@ def calibrate(
     weather: Annotated[Optional[Path], typer.Option("--weather", help="TMY3, EPW or weather CSV for outdoor temperature and irradiance.", exists=True, dir_okay=False, rich_help_panel="Inputs")] = None,
     site: Annotated[Optional[str], typer.Option("--site", help="LAT,LON in decimal degrees, for the clear-sky fallback.", rich_help_panel="Inputs")] = None,
     construction: Annotated[Optional[Path], typer.Option("--construction", help="Construction TOML: judge the calibrated UA and capacity against it.", exists=True, dir_okay=False, rich_help_panel="Inputs")] = None,
+    window_areas: Annotated[Optional[str], typer.Option("--window-areas", help="Window area per façade \\[m²], e.g. S=8,E=3,W=3,N=4: weights the sun on each façade (default: all alike, or the construction's windows).", rich_help_panel="Inputs")] = None,
     ground_c: Annotated[Optional[float], typer.Option("--ground-c", help="Constant ground temperature under floors on the ground \\[°C]; part of the heat loss then goes to it.", rich_help_panel="Inputs")] = None,
     ground_share: Annotated[Optional[float], typer.Option("--ground-share", help="Share of the heat loss that goes to the ground (0..0.9); default: from the construction's ground_floor elements.", rich_help_panel="Inputs")] = None,
     model: Annotated[ModelChoice, typer.Option("--model", help="RC model, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
@@ -65,6 +66,7 @@ def calibrate(
         site=site, construction=construction, model=model.value, gains=gains.value.replace("-", "_"),
         step_s=step_min * 60.0 if step_min else None, progress=not quiet and not as_json, ground_c=ground_c,
         ground_share=ground_share, method=estimator.value.replace("-", "_"), test_days=test_days,
+        window_areas=window_areas,
     )
     body = result.to_dict()
     write_json(out, body)
