@@ -208,6 +208,7 @@ def test_rows_match_the_single_home_chain_and_the_truth(fleet_dir, local_run):
     assert rows.loc["h1", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
     assert rows.loc["h1", "tau1_h"] == pytest.approx(single.time_constants_h[0], rel=1e-9)
     assert rows.loc["h1", "cv_rmse_pct"] == pytest.approx(single.fit["cv_rmse_pct"], rel=1e-9)
+    assert rows.loc["h1", "heating_share"] == pytest.approx(single.extras["heating_share"], rel=1e-9)
     assert rows.loc["h1", "log_sha256"] == single.extras["provenance"]["inputs"]["log"]["sha256"]
     for home in ("h1", "h2", "h3", "h4"):
         # Series resistances (module docstring); 15 % covers ten days of noisy data.
@@ -234,6 +235,8 @@ def test_summary_matches_numpy_on_the_rows(local_run):
     assert summary.loc["homes", "count"] == 5 and summary.loc["homes_error", "count"] == 1
     assert summary.loc["homes_ok", "count"] == 4
     assert summary.loc["homes_flagged", "count"] == int((ok["n_warnings"] > 0).sum())
+    assert summary.loc["homes_heating_share_low", "count"] == int((ok["heating_share"] < 0.45).sum())
+    assert summary.loc["heating_share", "count"] == ok["heating_share"].notna().sum() > 0
     assert run.summary_csv == summary_path(run.out) and run.summary_csv.endswith("RESULTS.summary.csv")
 
 

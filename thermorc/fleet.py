@@ -93,6 +93,7 @@ RESULT_COLUMNS = (
     ("cv_rmse_pct", "float64"),
     ("nmbe_pct", "float64"),
     ("rmse_k", "float64"),
+    ("heating_share", "float64"),
     ("n_samples", "int64"),
     ("data_verdict", "string"),
     ("n_warnings", "int64"),
@@ -588,6 +589,7 @@ def flatten_result(result, home, model="auto"):
         cv_rmse_pct=_finite(fit.get("cv_rmse_pct")),
         nmbe_pct=_finite(fit.get("nmbe_pct")),
         rmse_k=_finite(fit.get("rmse_k")),
+        heating_share=_finite(body.get("heating_share")),
         n_samples=int(fit["n_samples"]) if _finite(fit.get("n_samples")) is not None else None,
         data_verdict=(body.get("data_quality") or {}).get("verdict"),
         n_warnings=len(warns),
@@ -1464,6 +1466,7 @@ SUMMARY_QUANTITIES = (
     ("cv_rmse_pct", "%"),
     ("nmbe_pct", "%"),
     ("rmse_k", "K"),
+    ("heating_share", "1"),
     ("seconds", "s"),
 )
 
@@ -1483,7 +1486,9 @@ def summarise(results):
         One row per quantity of :data:`SUMMARY_QUANTITIES` over the homes with status
         ``ok`` (``quantity``, ``unit``, ``count``, ``mean``, ``p10``, ``p50``, ``p90``,
         ``min``, ``max``), then counts: ``homes``, ``homes_ok``, ``homes_error``,
-        ``homes_flagged`` (calibrated, with at least one warning about the fit) and
+        ``homes_flagged`` (calibrated, with at least one warning about the fit),
+        ``homes_heating_share_low`` (calibrated, the metered heating below
+        :data:`thermorc.estimate.MIN_HEATING_SHARE` of the heat: UA not identifiable) and
         ``model_<name>`` for each chosen model.
 
     Notes
@@ -1492,6 +1497,8 @@ def summarise(results):
     statistics (R. J. Hyndman and Y. Fan, "Sample quantiles in statistical packages," The
     American Statistician, vol. 50, no. 4, pp. 361-365, 1996, definition 7).
     """
+    from thermorc.estimate import MIN_HEATING_SHARE
+
     columns = [q for q, _ in SUMMARY_QUANTITIES] + ["status", "n_warnings", "model"]
     if isinstance(results, pd.DataFrame):
         frame = results[columns]
@@ -1512,6 +1519,7 @@ def summarise(results):
         ("homes_ok", len(ok)),
         ("homes_error", int((frame["status"] == "error").sum())),
         ("homes_flagged", int((ok["n_warnings"].fillna(0) > 0).sum())),
+        ("homes_heating_share_low", int((pd.to_numeric(ok["heating_share"], errors="coerce") < MIN_HEATING_SHARE).sum())),
     ]
     for name, n in ok["model"].value_counts().sort_index().items():
         counts.append((f"model_{name}", int(n)))
