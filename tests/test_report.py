@@ -8,6 +8,7 @@ import math
 import re
 import shutil
 import subprocess
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -294,3 +295,23 @@ def test_every_quantity_of_the_parameter_table_has_its_si_unit():
     table = _parameter_table(result).set_index("key")
     assert table.loc["sensor_time_constant_s", "unit"] == "s"
     assert (table.drop(index="solar_to_envelope_share")["unit"] != "-").all()
+
+
+def test_report_shows_the_held_out_validation_and_the_heating_share():
+    # A result calibrated with the last week kept back: the report's fit section gives the
+    # validation figures RESULT.json holds, and the heating share of the fitted period.
+    from thermorc.chain import calibrate_files
+    from thermorc.report import render_html
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = calibrate_files(DEMO / "log.csv", tz="America/Chicago", weather=DEMO / "weather.csv",
+                                 model="2R2C", test_days=7)
+        home = parse_home({"log": {"file": str(DEMO / "log.csv"), "tz": "America/Chicago"},
+                           "weather": str(DEMO / "weather.csv"), "site": str(DEMO / "site.toml")},
+                          path=str(DEMO / "home.toml"))
+        page = render_html(build_report(home, "2023-02", result=result))
+    v = result.extras["validation"]
+    assert "Validation on days the fit did not see" in page
+    assert f"RMSE {v['rmse_k']:.2f} K" in page and f"bias {v['bias_k']:.2f} K" in page
+    assert f"supplied {100 * result.extras['heating_share']:.0f} % of the heat" in page

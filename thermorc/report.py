@@ -715,6 +715,37 @@ def _g14_table(result, step_s):
     return pd.DataFrame(rows).set_index("resolution")
 
 
+def _share_html(result):
+    share = result.extras.get("heating_share")
+    if share is None or not math.isfinite(float(share)):
+        return ""
+    from thermorc.estimate import MIN_HEATING_SHARE
+
+    text = (f"The metered heating supplied {100 * float(share):.0f} % of the heat entering the home in the "
+            "fitted period (the rest: sun and unlogged gains, by the fit).")
+    if float(share) < MIN_HEATING_SHARE:
+        text += (f" Below {100 * MIN_HEATING_SHARE:.0f} %, the record does not pin down the heat loss coefficient: "
+                 "treat UA as unknown and calibrate again on colder weeks.")
+    return _p(text)
+
+
+def _validation_html(validation):
+    """The held-out days of ``calibrate --test-days``, when the result has them."""
+    if not validation:
+        return ""
+    def fmt(key, unit, digits=2):
+        value = validation.get(key)
+        return "–" if value is None or not math.isfinite(float(value)) else f"{float(value):.{digits}f} {unit}"
+    text = (f"Days kept back from the fit ({str(validation.get('start', ''))[:10]} to "
+            f"{str(validation.get('end', ''))[:10]}), predicted open loop: indoor temperature RMSE "
+            f"{fmt('rmse_k', 'K')}, bias {fmt('bias_k', 'K')}, largest error {fmt('max_abs_error_k', 'K')}; "
+            f"hourly heating energy CV(RMSE) {fmt('cv_rmse_pct', '%', 1)}, NMBE {fmt('nmbe_pct', '%', 1)}.")
+    html = "<h3>Validation on days the fit did not see</h3>" + _p(text)
+    for caution in validation.get("warnings") or []:
+        html += _p(caution)
+    return html
+
+
 def _comparison_table(result):
     comp = result.extras.get("model_comparison") or {}
     rows = []
@@ -1206,6 +1237,8 @@ def _sections(rep, report_quality, in_month, frame, follow_note, comp_meta, setb
              "under-predicts. The criteria were written for whole-building energy models; a home's on/off "
              "heating makes hourly energy noisy, so the hourly CV(RMSE) of a thermostat log is often high even "
              f"when the temperatures fit well (here RMSE {f['temperature_rmse_k']:.2f} K).")
+        + _share_html(result)
+        + _validation_html(result.extras.get("validation"))
     )))
     if "model_comparison" in rep.tables:
         sections.append(("Model comparison", (
