@@ -82,17 +82,20 @@ def parse_site(text):
     return {"latitude": lat, "longitude": lon}
 
 
-def parse_window_areas(text):
+def parse_window_areas(text, name="--window-areas"):
     """
     Read the glazing area per façade from the command line, as façade weights of the solar input.
 
     Parameters
     ----------
-    text : str
+    text : str or dict
         ``FACING=AREA`` pairs separated by commas (or semicolons, handy in a CSV cell), e.g.
         ``"S=8,E=3,W=3,N=4"``: a compass point
         (N, NE, E, SE, S, SW, W, NW) or an azimuth clockwise from north [deg], and the window
-        area facing it [m²]. Windows of one façade may be added up or given one by one.
+        area facing it [m²]. Windows of one façade may be added up or given one by one. A
+        dict ``{FACING: AREA}`` (a TOML table) reads the same.
+    name : str
+        The option or key named in error messages.
 
     Returns
     -------
@@ -107,6 +110,8 @@ def parse_window_areas(text):
     """
     from thermorc.construction import _COMPASS_DEG, facade_weights
 
+    if isinstance(text, dict):
+        text = ",".join(f"{facing}={area}" for facing, area in text.items())
     windows = []
     for part in str(text).replace(";", ",").split(","):
         facing, sep, area_s = part.partition("=")
@@ -115,14 +120,14 @@ def parse_window_areas(text):
             azimuth = _COMPASS_DEG[facing] if facing in _COMPASS_DEG else float(facing)
             area = float(area_s)
         except ValueError:
-            raise InputError(f"--window-areas part {part.strip()!r} is not FACING=AREA (e.g. S=8: a compass point "
+            raise InputError(f"{name} part {part.strip()!r} is not FACING=AREA (e.g. S=8: a compass point "
                              "or an azimuth in degrees, and m2 of window)") from None
         if not sep or not (np.isfinite(azimuth) and np.isfinite(area)) or area < 0:
-            raise InputError(f"--window-areas part {part.strip()!r} is not FACING=AREA with an area of 0 m2 or more")
+            raise InputError(f"{name} part {part.strip()!r} is not FACING=AREA with an area of 0 m2 or more")
         windows.append((azimuth, area))
     weights = facade_weights(windows)
     if weights is None:
-        raise InputError(f"--window-areas {text!r} adds up to no window area")
+        raise InputError(f"{name} {text!r} adds up to no window area")
     return weights
 
 
@@ -491,8 +496,6 @@ def calibrate_files(
     _check_test_days(test_days)
     weights = weights_from = None
     if window_areas is not None:
-        if isinstance(window_areas, dict):
-            window_areas = ",".join(f"{facing}={area}" for facing, area in window_areas.items())
         weights = parse_window_areas(window_areas)
         weights_from = "the window areas given"
     elif built is not None:

@@ -399,9 +399,9 @@ def _home_from_record(values, row, key_rows, path, base):
     window_areas = _text(values, "window_areas", where)
     if window_areas is not None:
         try:
-            parse_window_areas(window_areas)
+            parse_window_areas(window_areas, name="window_areas")
         except InputError as exc:
-            raise InputError(exc.message.replace("--window-areas", "window_areas"), **where("window_areas")) from None
+            raise InputError(exc.message, **where("window_areas")) from None
     return HomeSpec(
         home_id=home_id, log=paths["log"], partition=partition, column_map=paths["column_map"], site=site,
         weather=paths["weather"], tz=tz, interval=interval, floor_area_m2=area,

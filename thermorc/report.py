@@ -130,9 +130,9 @@ class HomeFile:
         Construction TOML, thermostat program TOML, setback strategies TOML.
     floor_area_m2 : float or None
         Heated floor area. [m²]
-    window_areas : str or None
-        Window area per façade, ``"S=8,E=3,W=3,N=4"`` [m²]: weights the façades of the solar
-        input (:func:`thermorc.chain.parse_window_areas`).
+    window_areas : str or dict or None
+        Window area per façade, ``"S=8,E=3,W=3,N=4"`` or a table [m²]: weights the façades of
+        the solar input (:func:`thermorc.chain.parse_window_areas`).
     preset : str
         ``'1R1C'``, ``'2R2C'``, ``'3R2C'`` or ``'auto'``.
     gains : str
@@ -155,7 +155,7 @@ class HomeFile:
     schedule: str | None = None
     strategies: str | None = None
     floor_area_m2: float | None = None
-    window_areas: str | None = None
+    window_areas: object = None
     preset: str = "auto"
     gains: str = "constant"
     step_s: float | None = None
@@ -315,14 +315,10 @@ def parse_home(data, path):
     if window_areas is not None:
         from thermorc.chain import parse_window_areas
 
-        if isinstance(window_areas, dict):
-            window_areas = ",".join(f"{facing}={area}" for facing, area in window_areas.items())
         try:
-            parse_window_areas(str(window_areas))
+            parse_window_areas(window_areas, name="window_areas")
         except InputError as exc:
-            raise InputError(exc.message.replace("--window-areas", "window_areas"), path=path,
-                             column="window_areas") from None
-        window_areas = str(window_areas)
+            raise exc.located(path=path, column="window_areas") from None
     home = HomeFile(
         path=path,
         name=_text(data.get("name"), path, "name") or os.path.splitext(os.path.basename(path))[0],
