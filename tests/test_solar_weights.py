@@ -144,3 +144,11 @@ def test_calibration_with_window_areas_keeps_their_weights(tmp_path):
                                    str(tmp_path / "bad.json")])
     assert bad.exit_code == 2 and not (tmp_path / "bad.json").exists()
     assert "--window-areas part 'E'" in bad.output
+
+
+def test_the_plain_sum_says_how_to_weight_the_facades():
+    demo = Path(__file__).parents[1] / "weather_demo"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        prepared = chain.prepare_log(demo / "log.csv", tz="America/Chicago", weather_path=demo / "weather.csv")
+    assert any("all weighted alike" in n and "--window-areas" in n for n in prepared.notes)

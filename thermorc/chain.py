@@ -236,7 +236,9 @@ def prepare_log(
     if has_ghi and "latitude" in site and "longitude" in site:
         frame[SOLAR_COLUMN] = vertical_irradiance(frame, site, weather_on_grid, weights=solar_weights)
         notes.append("solar gains follow the irradiance on the four vertical façades (pvlib transposition)"
-                     + (f", weighted by {weights_from}" if solar_weights else ""))
+                     + (f", weighted by {weights_from}" if solar_weights else
+                        ", all weighted alike (give the window areas per façade, --window-areas, or a construction "
+                        "where the windows face mostly one way)"))
     elif has_ghi:
         msg = ("the site is not known, so solar gains follow the horizontal irradiance, which tracks the sun through "
                "windows poorly in winter; give --site LAT,LON for the sum over the four vertical façades")
