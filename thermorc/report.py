@@ -729,6 +729,7 @@ def _validation_html(validation):
     """The held-out days of ``calibrate --test-days``, when the result has them."""
     if not validation:
         return ""
+
     def fmt(key, unit, digits=2):
         value = validation.get(key)
         return "–" if value is None or not math.isfinite(float(value)) else f"{float(value):.{digits}f} {unit}"
@@ -736,10 +737,8 @@ def _validation_html(validation):
             f"{str(validation.get('end', ''))[:10]}), predicted open loop: indoor temperature RMSE "
             f"{fmt('rmse_k', 'K')}, bias {fmt('bias_k', 'K')}, largest error {fmt('max_abs_error_k', 'K')}; "
             f"hourly heating energy CV(RMSE) {fmt('cv_rmse_pct', '%', 1)}, NMBE {fmt('nmbe_pct', '%', 1)}.")
-    html = "<h3>Validation on days the fit did not see</h3>" + _p(text)
-    for caution in validation.get("warnings") or []:
-        html += _p(caution)
-    return html
+    # Its cautions are among the result's warnings, which the report lists already.
+    return "<h3>Validation on days the fit did not see</h3>" + _p(text)
 
 
 def _comparison_table(result):
