@@ -310,6 +310,22 @@ def test_a_given_ground_path_recovers_the_total_heat_loss_and_its_split():
     np.testing.assert_allclose(pred, res._modelled.to_numpy(), atol=1e-6)
 
 
+def test_gains_pinned_at_zero_point_to_the_ground_input():
+    # The same known network: its 300 W of gains are less than the ~600 W it loses to the
+    # ground, so an outdoor-only fit needs a negative gain and ends at the 0 W bound. The
+    # warnings must then say what to give; with the ground given the gains are free again.
+    log, _ = ground_log(seed=4)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        plain = estimate.calibrate(log, model="2R2C")
+        given = estimate.calibrate(estimate.calibration_data(log, ground_c=8.0, ground_share=0.3), model="2R2C")
+    assert plain.parameters["internal_gains_w"] == 0.0
+    assert estimate.GAINS_AT_ZERO_ADVICE in plain.warnings
+    assert "--ground-c" in estimate.GAINS_AT_ZERO_ADVICE and "--ground-share" in estimate.GAINS_AT_ZERO_ADVICE
+    assert given.parameters["internal_gains_w"] > 100.0
+    assert estimate.GAINS_AT_ZERO_ADVICE not in given.warnings
+
+
 def test_a_ground_temperature_without_its_share_is_refused():
     log, _ = ground_log(seed=5, days=3)
     with pytest.raises(InputError, match="needs ground_share"):

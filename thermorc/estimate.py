@@ -84,6 +84,13 @@ C_BOUNDS_J_PER_K = (1e4, 1e10)
 APERTURE_BOUNDS_M2 = (1e-3, 200.0)
 GAINS_BOUNDS_W = (0.0, 20000.0)
 STATE_BOUNDS_C = (-50.0, 60.0)
+# What unlogged gains pinned at zero usually mean, and what to give (docs/calibration.md,
+# "Ground losses", has the measured effect of the ground input).
+GAINS_AT_ZERO_ADVICE = (
+    "The unlogged internal gains ended at 0 W: the home loses heat that no boundary of the model "
+    "carries, most often a floor on the ground (soil at a steady temperature looks like a negative gain). "
+    "Give the ground temperature and its share of the heat loss (--ground-c with --ground-share, or a "
+    "construction with its ground floor); without them UA may come out below the conductance to outdoor air.")
 # Residuals are compared as hourly means: thermostat cycling within the hour is not the
 # dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0
@@ -1442,6 +1449,10 @@ def calibrate(
         [n_ for n_ in names if not n_.startswith("internal")],
     )
     result_warnings += diagnose.bound_warnings(theta[: layout.n_physical], lower[: layout.n_physical], upper[: layout.n_physical], names)
+    # Within the tolerance of diagnose.bound_warnings, so the advice comes with that warning.
+    zero_w = GAINS_BOUNDS_W[0] + 1e-3 * (GAINS_BOUNDS_W[1] - GAINS_BOUNDS_W[0])
+    if not data.ground and any(n_.startswith("internal") and physical[n_] <= zero_w for n_ in names):
+        result_warnings.append(GAINS_AT_ZERO_ADVICE)
     share = heating_share(data, physical, layout.gains_series(theta))
     if not _screen:
         derived_names = ["heat_loss_coefficient_w_per_k", "time_constant_1_h"]
