@@ -620,3 +620,47 @@ def test_a_manifest_option_reaches_the_calibration(fleet_dir, tmp_path, header, 
         single = flatten_result(calibrate_files(log, site=SITE, model="2R2C", **options), homes[1], "2R2C")
     assert rows.loc["x", column] == pytest.approx(single[column], rel=1e-9)
     assert rows.loc["x", column] != pytest.approx(rows.loc["plain", column], rel=1e-3)
+
+
+def test_held_out_days_fill_the_test_columns(fleet_dir, local_run, tmp_path):
+    # --test-days for a fleet is calibrate --test-days per home: each row carries the
+    # single-home chain's validation, the summary counts the homes whose held-out heating
+    # misses ASHRAE Guideline 14's hourly limits (CV(RMSE) 30 %, NMBE +-10 %), and a run
+    # without held-out days leaves the columns empty and the count out.
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(f"id,log,site\nh1,{root / 'logs' / 'h1.csv'},\"{SITE}\"\nh2,{root / 'logs' / 'h2.csv'},\"{SITE}\"\n"
+                        f"short,{root / 'logs' / 'h3.csv'},\"{SITE}\"\n")
+    homes = read_manifest(manifest)
+    assert input_fingerprint(homes[0], model="2R2C", test_days=3) != input_fingerprint(homes[0], model="2R2C")
+    out = tmp_path / "R.parquet"
+    run = run_fleet(homes[:2], out, workers=1, model="2R2C", test_days=3)
+    rows = pd.read_parquet(out).set_index("home_id")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        single = calibrate_files(root / "logs" / "h1.csv", site=SITE, model="2R2C", test_days=3)
+    val = single.extras["validation"]
+    assert val["days"] == 3.0 and rows.loc["h1", "test_days"] == 3.0
+    for column, key in (("test_rmse_k", "rmse_k"), ("test_bias_k", "bias_k"), ("test_cv_rmse_pct", "cv_rmse_pct"),
+                        ("test_nmbe_pct", "nmbe_pct"), ("test_heating_share", "heating_share")):
+        assert rows.loc["h1", column] == pytest.approx(val[key], rel=1e-9), column
+    assert rows.loc["h1", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
+    summary = run.summary.set_index("quantity")
+    outside = ((rows["test_cv_rmse_pct"] > 30) | (rows["test_nmbe_pct"].abs() > 10)).sum()
+    assert summary.loc["homes_test_outside_hourly_limits", "count"] == outside
+    assert summary.loc["test_rmse_k", "count"] == 2
+    plain = local_run[1]
+    assert plain["test_rmse_k"].isna().all()
+    assert not {"homes_test_outside_hourly_limits", "test_rmse_k"} & set(local_run[0].summary["quantity"])
+    # Held-out days that leave nothing to fit are that home's error, not the run's.
+    run_fleet(homes[2:], tmp_path / "S.parquet", workers=1, model="2R2C", test_days=12)
+    bad = pd.read_parquet(tmp_path / "S.parquet").iloc[0]
+    assert bad["status"] == "error" and "--test-days 12 leaves nothing to calibrate on" in bad["error"]
+
+
+def test_cli_test_days_must_be_positive(fleet_dir, tmp_path):
+    root, _ = fleet_dir
+    out = tmp_path / "R.parquet"
+    r = runner.invoke(app, ["fleet", str(root / "homes.csv"), "--out", str(out), "--test-days", "0", "--workers", "1"])
+    assert r.exit_code == 2 and "--test-days 0 is not allowed" in r.output
+    assert len(r.output.strip().splitlines()) == 1 and not out.exists()

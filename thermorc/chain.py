@@ -376,7 +376,7 @@ def provenance(**paths):
 
 
 def _test_cut(index, test_days, log_path):
-    """First row of the held-out tail of ``test_days`` days (checked by :func:`_check_test_days`)."""
+    """First row of the held-out tail of ``test_days`` days (checked by :func:`check_test_days`)."""
     span_days = (index[-1] - index[0]).total_seconds() / 86400.0
     if test_days >= span_days:
         raise InputError(f"--test-days {test_days:g} leaves nothing to calibrate on: the log covers "
@@ -387,7 +387,15 @@ def _test_cut(index, test_days, log_path):
     return cut
 
 
-def _check_test_days(test_days):
+def check_test_days(test_days):
+    """
+    A held-out span of ``--test-days``, or :class:`InputError`.
+
+    Parameters
+    ----------
+    test_days : float or None
+        Days at the end of a log kept back from the fit. [d]
+    """
     if test_days is not None and not (np.isfinite(test_days) and test_days > 0):
         raise InputError(f"--test-days {test_days:g} is not allowed (expected a positive number of days)")
 
@@ -495,7 +503,7 @@ def calibrate_files(
         share_note = (f"ground share {ground_share:.3f} = the construction's ground-floor U A "
                       f"{ua['ground_ua_w_per_k']:.1f} W/K over its UA {ua['ua_w_per_k']:.1f} W/K")
     estimate._ground_path(ground_c, ground_share)  # checked before the log is read
-    _check_test_days(test_days)
+    check_test_days(test_days)
     weights = weights_from = None
     if window_areas is not None:
         weights = parse_window_areas(window_areas)
@@ -532,7 +540,7 @@ def calibrate_files(
             result = estimate.calibrate(data, model=model, gains=gains, path=str(log_path), ua_prior=ua_prior,
                                         method=method)
         if test_frame is not None:
-            result.extras["validation"] = estimate.validate(result, test_frame)
+            result.extras["validation"] = {"days": float(test_days), **estimate.validate(result, test_frame)}
             result.warnings.extend(result.extras["validation"]["warnings"])
     result.site = {**prepared.site, "tz": str(prepared.data.index.tz)}
     if weights and result.solar_input == SOLAR_COLUMN:

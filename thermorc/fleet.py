@@ -94,6 +94,12 @@ RESULT_COLUMNS = (
     ("nmbe_pct", "float64"),
     ("rmse_k", "float64"),
     ("heating_share", "float64"),
+    ("test_days", "float64"),
+    ("test_rmse_k", "float64"),
+    ("test_bias_k", "float64"),
+    ("test_cv_rmse_pct", "float64"),
+    ("test_nmbe_pct", "float64"),
+    ("test_heating_share", "float64"),
     ("n_samples", "int64"),
     ("data_verdict", "string"),
     ("n_warnings", "int64"),
@@ -575,6 +581,7 @@ def flatten_result(result, home, model="auto"):
     interval = (body.get("intervals") or {}).get("heat_loss_coefficient_w_per_k") or [None, None]
     warns = [_one_line(w) for w in body.get("warnings") or []]
     provenance = (body.get("provenance") or {}).get("inputs", {})
+    test = body.get("validation") or {}
     row.update(
         status="ok",
         model=body.get("model"),
@@ -590,6 +597,12 @@ def flatten_result(result, home, model="auto"):
         nmbe_pct=_finite(fit.get("nmbe_pct")),
         rmse_k=_finite(fit.get("rmse_k")),
         heating_share=_finite(body.get("heating_share")),
+        test_days=_finite(test.get("days")),
+        test_rmse_k=_finite(test.get("rmse_k")),
+        test_bias_k=_finite(test.get("bias_k")),
+        test_cv_rmse_pct=_finite(test.get("cv_rmse_pct")),
+        test_nmbe_pct=_finite(test.get("nmbe_pct")),
+        test_heating_share=_finite(test.get("heating_share")),
         n_samples=int(fit["n_samples"]) if _finite(fit.get("n_samples")) is not None else None,
         data_verdict=(body.get("data_quality") or {}).get("verdict"),
         n_warnings=len(warns),
@@ -603,7 +616,7 @@ def flatten_result(result, home, model="auto"):
     return row
 
 
-def calibrate_home(home, model="auto", gains="constant"):
+def calibrate_home(home, model="auto", gains="constant", test_days=None):
     """
     Calibrate one home of a fleet; never raises for a bad home.
 
@@ -615,6 +628,9 @@ def calibrate_home(home, model="auto", gains="constant"):
         Model to fit, or ``auto`` to compare all three.
     gains : {'constant', 'day_night'}
         Model of unlogged internal gains.
+    test_days : float, optional
+        Keep each log's last days back and fill the ``test_*`` columns with how the model
+        predicts them (:func:`thermorc.estimate.validate`). [d]
 
     Returns
     -------
@@ -638,7 +654,7 @@ def calibrate_home(home, model="auto", gains="constant"):
                 log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
                 site=home.site, construction=home.construction, model=model, gains=gains, table=table,
                 table_sha256=digest, ground_c=home.ground_c, ground_share=home.ground_share,
-                window_areas=home.window_areas,
+                window_areas=home.window_areas, test_days=test_days,
             )
         row = flatten_result(result, home, model)
         data_warns = [_one_line(w.message) for w in caught if issubclass(w.category, ThermorcWarning)]
@@ -717,7 +733,7 @@ def _content(path, cache, folder_ok=False):
         return f"unreadable:{type(exc).__name__}:{path}"
 
 
-def input_fingerprint(home, model="auto", gains="constant", cache=None):
+def input_fingerprint(home, model="auto", gains="constant", test_days=None, cache=None):
     """
     SHA-256 over everything a home's result depends on.
 
@@ -727,6 +743,8 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
         The home.
     model, gains : str
         The model and gains options of the run.
+    test_days : float, optional
+        The run's held-out days (``--test-days``).
     cache : _DigestCache, optional
         File digests already computed in this run.
 
@@ -737,8 +755,8 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
         hive-partitioned dataset the files of the home's partition folder; for any other
         dataset, all its files), column map, weather and construction files, each as its
         SHA-256; the manifest fields ``partition``, ``site``, ``tz``, ``interval`` and
-        ``floor_area_m2`` (and ``ground_c``, ``ground_share``, ``window_areas`` when given); ``model``, ``gains``
-        and the recipe version. File paths count
+        ``floor_area_m2`` (and ``ground_c``, ``ground_share``, ``window_areas`` when given); ``model``, ``gains``,
+        ``test_days`` (when given) and the recipe version. File paths count
         only through their content, so moving the data keeps rows current.
 
     Notes
@@ -775,6 +793,8 @@ def input_fingerprint(home, model="auto", gains="constant", cache=None):
     # Only when given, so that the fingerprints of homes without a ground stay as they were.
     record.update({k: getattr(home, k) for k in ("ground_c", "ground_share", "window_areas")
                    if getattr(home, k) is not None})
+    if test_days is not None:
+        record["test_days"] = float(test_days)
     text = json.dumps(record, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(text.encode()).hexdigest()
 
@@ -1303,6 +1323,7 @@ def run_fleet(
     scheduler=None,
     model="auto",
     gains="constant",
+    test_days=None,
     batch_size=None,
     retry_errors=False,
     on_start=None,
@@ -1329,6 +1350,9 @@ def run_fleet(
         Model for every home.
     gains : {'constant', 'day_night'}
         Model of unlogged internal gains.
+    test_days : float, optional
+        Keep each log's last days back and report how each model predicts them (the
+        ``test_*`` columns). [d]
     batch_size : int, optional
         Rows per row group and per journal file; default ``max(32, 8 * workers)``. Up to
         twice as many homes are in the workers' queue at a time, topped up as rows return,
@@ -1367,7 +1391,12 @@ def run_fleet(
     batch_size = int(batch_size or max(32, 8 * workers))
     if batch_size < 1:
         raise InputError(f"--batch is {batch_size} (expected 1 or more)")
-    kwargs = {"model": model, "gains": gains}
+    if test_days is not None:
+        from thermorc.chain import check_test_days
+
+        check_test_days(test_days)
+        test_days = float(test_days)
+    kwargs = {"model": model, "gains": gains, "test_days": test_days}
     folder = os.path.dirname(out)
     os.makedirs(folder, exist_ok=True)
     with OutputLock(out):
@@ -1467,6 +1496,10 @@ SUMMARY_QUANTITIES = (
     ("nmbe_pct", "%"),
     ("rmse_k", "K"),
     ("heating_share", "1"),
+    ("test_rmse_k", "K"),
+    ("test_bias_k", "K"),
+    ("test_cv_rmse_pct", "%"),
+    ("test_nmbe_pct", "%"),
     ("seconds", "s"),
 )
 
@@ -1483,13 +1516,15 @@ def summarise(results):
     Returns
     -------
     pandas.DataFrame
-        One row per quantity of :data:`SUMMARY_QUANTITIES` over the homes with status
-        ``ok`` (``quantity``, ``unit``, ``count``, ``mean``, ``p10``, ``p50``, ``p90``,
+        One row per quantity of :data:`SUMMARY_QUANTITIES` (the ``test_*`` ones only when
+        the results hold held-out figures) over the homes with status ``ok`` (``quantity``, ``unit``, ``count``, ``mean``, ``p10``, ``p50``, ``p90``,
         ``min``, ``max``), then counts: ``homes``, ``homes_ok``, ``homes_error``,
         ``homes_flagged`` (calibrated, with at least one warning about the fit),
         ``homes_heating_share_low`` (calibrated, the metered heating below
-        :data:`thermorc.estimate.MIN_HEATING_SHARE` of the heat: UA not identifiable) and
-        ``model_<name>`` for each chosen model.
+        :data:`thermorc.estimate.MIN_HEATING_SHARE` of the heat: UA not identifiable),
+        ``homes_test_outside_hourly_limits`` (a run with ``test_days`` only: the held-out
+        days' hourly heating energy outside ASHRAE Guideline 14's CV(RMSE) 30 % / NMBE
+        ±10 %) and ``model_<name>`` for each chosen model.
 
     Notes
     -----
@@ -1497,18 +1532,26 @@ def summarise(results):
     statistics (R. J. Hyndman and Y. Fan, "Sample quantiles in statistical packages," The
     American Statistician, vol. 50, no. 4, pp. 361-365, 1996, definition 7).
     """
+    from thermorc.diagnose import GUIDELINE14
     from thermorc.estimate import MIN_HEATING_SHARE
 
-    columns = [q for q, _ in SUMMARY_QUANTITIES] + ["status", "n_warnings", "model"]
+    columns = list(dict.fromkeys([q for q, _ in SUMMARY_QUANTITIES] + ["status", "n_warnings", "model",
+                                                                       "test_cv_rmse_pct", "test_nmbe_pct"]))
     if isinstance(results, pd.DataFrame):
-        frame = results[columns]
+        frame = results.reindex(columns=columns)
     else:
-        frame = pd.read_parquet(results, columns=columns)
+        import pyarrow.parquet as pq
+
+        # Outputs of an older version lack the newer columns: summarise what they hold.
+        present = set(pq.read_schema(results).names)
+        frame = pd.read_parquet(results, columns=[c for c in columns if c in present]).reindex(columns=columns)
     ok = frame[frame["status"] == "ok"]
     rows = []
     for name, unit in SUMMARY_QUANTITIES:
         v = pd.to_numeric(ok[name], errors="coerce").to_numpy(dtype=float)
         v = v[np.isfinite(v)]
+        if name.startswith("test_") and not v.size:
+            continue  # a run without --test-days
         stats = {"quantity": name, "unit": unit, "count": int(v.size)}
         if v.size:
             p10, p50, p90 = np.percentile(v, [10, 50, 90])
@@ -1521,6 +1564,12 @@ def summarise(results):
         ("homes_flagged", int((ok["n_warnings"].fillna(0) > 0).sum())),
         ("homes_heating_share_low", int((pd.to_numeric(ok["heating_share"], errors="coerce") < MIN_HEATING_SHARE).sum())),
     ]
+    if ok["test_cv_rmse_pct"].notna().any():
+        limits = GUIDELINE14["hourly"]
+        cv = pd.to_numeric(ok["test_cv_rmse_pct"], errors="coerce")
+        nmbe = pd.to_numeric(ok["test_nmbe_pct"], errors="coerce")
+        counts.append(("homes_test_outside_hourly_limits",
+                       int(((cv > limits["cv_rmse_pct"]) | (nmbe.abs() > limits["nmbe_pct"])).sum())))
     for name, n in ok["model"].value_counts().sort_index().items():
         counts.append((f"model_{name}", int(n)))
     rows += [{"quantity": name, "unit": "homes", "count": n} for name, n in counts]
