@@ -68,3 +68,19 @@ def test_the_prediction_error_estimator_is_chosen_from_the_command_line(log_csv,
     body = json.loads(out.read_text(encoding="utf-8"))
     assert body["estimator"]["method"] == "prediction_error"
     assert body["estimator"]["noise"]["measurement_noise_k"] == pytest.approx(0.05, rel=0.3)
+
+
+def test_four_period_gains_from_the_command_line(log_csv, tmp_path):
+    # The option reaches the fit and RESULT.json keeps what rebuilds the gains; simulate reads
+    # the file back. (The levels themselves are checked in tests/test_estimate.py.)
+    out = tmp_path / "RESULT.json"
+    r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--gains", "four-period", "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    assert "unlogged gains, evening" in r.stdout
+    body = json.loads(out.read_text(encoding="utf-8"))
+    assert body["gains_schedule"]["kind"] == "four_period" and body["gains_schedule"]["starts_h"] == [6, 9, 17, 23]
+    assert {f"internal_gains_{k}_w" for k in ("morning", "daytime", "evening", "night")} <= set(body["parameters"])
+    sim = tmp_path / "SIM.csv"
+    r = runner.invoke(app, ["simulate", str(out), "--log", str(log_csv), "--out", str(sim)])
+    assert r.exit_code == 0, r.output
+    assert sim.exists()

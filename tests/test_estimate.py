@@ -373,3 +373,47 @@ def test_the_sensor_lag_of_a_cycling_log_is_recovered_and_used_by_predict():
     pred = estimate.predict(res, log)
     np.testing.assert_allclose(pred["indoor_c"].to_numpy(), res._modelled.to_numpy(), atol=1e-6)
     assert "indoor_node_c" in pred.columns
+
+
+def test_four_period_gains_are_recovered_from_their_own_model():
+    # Simulate-and-fit: a 2R2C whose unlogged gains step between four levels over the day
+    # (morning 06-09, daytime 09-17, evening 17-23, night 23-06 h, set here by hand). The
+    # four-period fit returns the levels and UA; the result rebuilds the same gains and
+    # predicts what the fit modelled; a file missing one level is refused.
+    from thermorc.result import CalibrationResult
+
+    rng = np.random.default_rng(11)
+    net = Network.from_preset("2R2C", TRUE_2R2C)
+    step_s = 900.0
+    index = pd.date_range("2025-01-01", periods=int(21 * 86400 / step_s), freq="15min", tz="UTC")
+    n = len(index)
+    hours = np.arange(n) * step_s / 3600
+    outdoor = 2 + 5 * np.sin(2 * np.pi * (hours - 15) / 24) + np.cumsum(rng.normal(0, 0.1, n))
+    ghi = np.clip(500 * np.sin(2 * np.pi * (hours % 24 - 7) / 20), 0, None) * np.repeat(rng.uniform(0.2, 1, 22), 96)[:n]
+    heat = np.repeat(rng.choice([0.0, 2000.0, 5000.0], n // 4 + 1), 4)[:n]
+    hour = index.hour
+    truth = {"morning": 500.0, "daytime": 150.0, "evening": 800.0, "night": 250.0}
+    label = np.select([(hour >= 6) & (hour < 9), (hour >= 9) & (hour < 17), (hour >= 17) & (hour < 23)],
+                      ["morning", "daytime", "evening"], "night")
+    gains = np.array([truth[k] for k in label])
+    inputs = pd.DataFrame({"outdoor_c": outdoor, "heating_w": heat, "solar_w_m2": ghi, "internal_w": gains}, index=index)
+    sim = simulate(net, inputs, x0=[19.0, 12.0], interval_means=False)
+    log = pd.DataFrame({"indoor_c": sim.temperatures_c["indoor"].to_numpy() + rng.normal(0, 0.03, n),
+                        "heating_w": heat, "outdoor_c": outdoor, "ghi_w_m2": ghi}, index=index)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log, model="2R2C", gains="four_period")
+        flat = estimate.calibrate(log, model="2R2C")
+    for name, value in truth.items():
+        assert res.parameters[f"internal_gains_{name}_w"] == pytest.approx(value, abs=15.0), name
+    ua = 1.0 / (TRUE_2R2C["r_indoor_envelope_k_per_w"] + TRUE_2R2C["r_envelope_outdoor_k_per_w"])
+    assert res.heat_loss_coefficient_w_per_k == pytest.approx(ua, rel=0.02)
+    assert res.fit["rmse_k"] < 0.5 * flat.fit["rmse_k"]  # one level cannot follow the day
+    again = CalibrationResult.from_dict(res.to_dict())
+    np.testing.assert_allclose(again.internal_gains_w(index).to_numpy(),
+                               [res.parameters[f"internal_gains_{k}_w"] for k in label])
+    np.testing.assert_allclose(estimate.predict(again, log)["indoor_c"].to_numpy(), res._modelled.to_numpy(), atol=1e-6)
+    body = res.to_dict()
+    del body["parameters"]["internal_gains_evening_w"]
+    with pytest.raises(InputError, match="four-period internal gains need 'internal_gains_evening_w'"):
+        CalibrationResult.from_dict(body)

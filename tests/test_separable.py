@@ -46,7 +46,7 @@ def test_preset_matrices_match_network(model):
 
 
 @pytest.mark.parametrize("model", list(RC))
-@pytest.mark.parametrize("gains", ["constant", "day_night"])
+@pytest.mark.parametrize("gains", ["constant", "day_night", "four_period"])
 def test_columns_rebuild_the_lsim_response(data, model, gains):
     # The response to all inputs at once, from scipy.signal.lsim with linear interpolation of
     # the outdoor temperature and held powers (the two are run separately and added, since
@@ -54,10 +54,16 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
     rng = np.random.default_rng(0)
     n_solar = 1 if model == "1R1C" else 2
     apertures = rng.uniform(1, 5, n_solar)
-    levels = rng.uniform(100, 400, 2 if gains == "day_night" else 1)
+    # The periods by hand (not through gains_period_labels): day 07-23 h, or the four
+    # periods morning 06-09, daytime 09-17, evening 17-23 and night 23-06 h.
+    hour = data.index.hour
+    label = {"constant": np.zeros(len(hour), dtype=int), "day_night": np.where((hour >= 7) & (hour < 23), 0, 1),
+             "four_period": np.select([(hour >= 6) & (hour < 9), (hour >= 9) & (hour < 17), (hour >= 17) & (hour < 23)],
+                                      [0, 1, 2], 3)}[gains]
+    levels = rng.uniform(100, 400, label.max() + 1)
     hidden = rng.uniform(10, 18, 2)
-    day = np.isin(data.index.hour, range(7, 23))
-    basis = ResponseBasis(model, data, day if gains == "day_night" else None, np.full(len(data.y), -1), 0)
+    periods = None if gains == "constant" else (label, levels.size)
+    basis = ResponseBasis(model, data, periods, np.full(len(data.y), -1), 0)
     rows = basis.rows(RC[model])
     coef = np.concatenate([apertures, levels, hidden[: basis.n_hidden]])
     modelled = rows[:, 0] + rows[:, 1:] @ coef
@@ -67,7 +73,7 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
     for seg_no, seg in enumerate(data.segments):
         u = data.u[seg]
         t = np.arange(seg.stop - seg.start) * data.step_s
-        gain_w = np.where(day[seg], levels[0], levels[-1])
+        gain_w = levels[label[seg]]
         power = np.zeros((len(t), n))
         power[:, 0] = u[:, 1] + u[:, 3] + gain_w + apertures[0] * u[:, 2]
         if n_solar == 2:
@@ -136,7 +142,7 @@ def test_closed_form_modes_match_eigh():
         np.testing.assert_allclose(np.abs(v.T @ ref_v), np.eye(2), atol=1e-7)
 
 
-@pytest.mark.parametrize("model,gains", [("1R1C", "constant"), ("2R2C", "day_night"), ("3R2C", "constant")])
+@pytest.mark.parametrize("model,gains", [("1R1C", "constant"), ("2R2C", "day_night"), ("3R2C", "constant"), ("2R2C", "four_period")])
 def test_holdout_from_the_responses_equals_predict(model, gains):
     # The held-out score continues the training simulation; thermorc.estimate.predict (a plain
     # run of the network through thermorc.simulate) must give the same RMSE.

@@ -439,7 +439,7 @@ def calibrate_files(
         and capacity compare with it, and its windows weight the façades of the solar input.
     model : {'1R1C', '2R2C', '3R2C', 'auto'}
         Preset, or ``auto`` to compare all three.
-    gains : {'constant', 'day_night'}
+    gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     step_s : float, optional
         Model step [s].

@@ -59,7 +59,7 @@ from thermorc.errors import (
     NetworkError,
 )
 from thermorc.network import PRESETS, Network, modes_of
-from thermorc.result import CalibrationResult
+from thermorc.result import GAINS_SCHEDULES, CalibrationResult, gains_period_labels, gains_periods
 from thermorc.separable import ResponseBasis, preset_matrices, symmetric_modes
 from thermorc.simulate import _setpoint_steady_state, heater_power, run_modes, sensed_temperature
 
@@ -296,7 +296,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
         Preset.
     data : CalibrationData
         The log.
-    gains : {'constant', 'day_night'}
+    gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     theta_rc : numpy.ndarray
         Natural logarithms of the preset's R and C from the hourly fit (the start).
@@ -325,7 +325,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
     for seg in data.segments:
         observed[seg] = np.isfinite(data.y[seg])
     block_id, n_blocks = _blocks(data, observed, 1)
-    basis = ResponseBasis(model, data, _daytime(data.index) if gains == "day_night" else None, block_id, n_blocks)
+    basis = ResponseBasis(model, data, _periods(data.index, gains), block_id, n_blocks)
     bounds = [R_BOUNDS_K_PER_W if name.startswith("r_") else C_BOUNDS_J_PER_K for name in PRESETS[model].parameters]
     rc_lo, rc_hi = np.log(np.array(bounds)).T
     tau_lo, tau_hi = math.log(0.1 * data.step_s), math.log(SENSOR_MAX_TAU_S)
@@ -586,10 +586,12 @@ class _Param:
     start: float
 
 
-def _daytime(index):
-    """Rows of the daytime gains level, 07:00-23:00 local time."""
-    hours = index.hour + index.minute / 60.0
-    return np.asarray((hours >= 7) & (hours < 23))
+def _periods(index, gains):
+    """Gains period of each row and the number of periods; None for one constant level."""
+    if gains == "constant":
+        return None
+    schedule = GAINS_SCHEDULES[gains]
+    return gains_period_labels(index, schedule), len(gains_periods(schedule)[1])
 
 
 def _solar_onto_nodes(aperture_m2, share, n_solar):
@@ -614,11 +616,9 @@ class _Layout:
             if model != "1R1C":
                 # Sun lands on floors and furniture as much as on the air: let the data split it.
                 self.params.append(_Param("solar_to_envelope_share", False, 0.0, 1.0, start.get("solar_to_envelope_share", 0.3)))
-        if gains == "day_night":
-            self.params.append(_Param("internal_gains_day_w", False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
-            self.params.append(_Param("internal_gains_night_w", False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
-        else:
-            self.params.append(_Param("internal_gains_w", False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
+        self.gains_names = gains_periods(GAINS_SCHEDULES[gains])[1]
+        for name in self.gains_names:
+            self.params.append(_Param(name, False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
         self.n_physical = len(self.params)
         # Unmeasured initial temperatures of the hidden nodes, one per segment.
         self.hidden = [n for n in self._states() if n != "indoor"]
@@ -630,7 +630,7 @@ class _Layout:
                 if guess is None:
                     guess = 0.5 * (t0 + data.u[seg.start, 0])
                 self.params.append(_Param(f"x0_{node}_segment{k}", False, *STATE_BOUNDS_C, float(np.clip(guess, -40, 50))))
-        self.day = _daytime(data.index)
+        self.periods = _periods(data.index, gains)
 
     def _states(self):
         return ("indoor",) if self.model == "1R1C" else ("indoor", "envelope")
@@ -667,9 +667,9 @@ class _Layout:
 
     def gains_series(self, theta, rows=slice(None)):
         v = self.values(theta)
-        if self.gains == "day_night":
-            return np.where(self.day[rows], v["internal_gains_day_w"], v["internal_gains_night_w"])
-        return np.full(len(self.data.y[rows]), v["internal_gains_w"])
+        if self.periods is None:
+            return np.full(len(self.data.y[rows]), v["internal_gains_w"])
+        return np.array([v[name] for name in self.gains_names])[self.periods[0][rows]]
 
     def initial_state(self, theta, k, seg):
         v = self.values(theta)
@@ -807,7 +807,7 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
     for s in data.segments:
         observed[s] = np.isfinite(data.y[s])
     block_id, n_blocks = _blocks(data, observed, block)
-    basis = ResponseBasis(model, data, layout.day if gains == "day_night" else None, block_id, n_blocks)
+    basis = ResponseBasis(model, data, layout.periods, block_id, n_blocks)
     basis.sensor_s = float(sensor_s)
     n_out = n_blocks + (1 if prior is not None else 0)
     evaluations = [0]
@@ -1254,8 +1254,8 @@ def calibrate(
         optionally ``ghi_w_m2`` [W m⁻²] and ``internal_gains_w`` [W].
     model : {'1R1C', '2R2C', '3R2C'}
         Preset to fit.
-    gains : {'constant', 'day_night'}
-        Model of the unlogged internal gains (day is 07:00-23:00 local time).
+    gains : {'constant', 'day_night', 'four_period'}
+        Model of the unlogged internal gains (periods of local time: :data:`thermorc.result.GAINS_SCHEDULES`).
     method : {'output_error', 'prediction_error'}
         Estimator: least squares on the open-loop indoor temperature, or maximum likelihood of
         the stochastic model with a Kalman filter (started from the output-error fit).
@@ -1297,8 +1297,8 @@ def calibrate(
     model = str(model).upper()
     if model not in PRESETS:
         raise InputError(f"unknown model '{model}' (expected one of {', '.join(PRESETS)} or auto)")
-    if gains not in ("constant", "day_night"):
-        raise InputError(f"gains is {gains!r} (expected 'constant' or 'day_night')")
+    if gains not in GAINS_SCHEDULES:
+        raise InputError(f"gains is {gains!r} (expected one of {', '.join(map(repr, GAINS_SCHEDULES))})")
     if method not in ("output_error", "prediction_error"):
         raise InputError(f"method is {method!r} (expected 'output_error' or 'prediction_error')")
     data = log if isinstance(log, CalibrationData) else calibration_data(log, step_s=step_s, path=path)
@@ -1542,7 +1542,7 @@ def calibrate(
         std_errors=std_errors,
         intervals=intervals,
         covariance=covariance if covariance["matrix"] is not None else None,
-        gains_schedule={"kind": "day_night", "day_start_h": 7, "night_start_h": 23} if gains == "day_night" else {"kind": "constant"},
+        gains_schedule=dict(GAINS_SCHEDULES[gains]),
         step_s=data.step_s,
         solar_input=data.solar_column,
         ground=_ground_split(data.ground, derived["heat_loss_coefficient_w_per_k"]),
@@ -1987,7 +1987,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     ----------
     log : thermorc.align.AlignedData or pandas.DataFrame
         As for :func:`calibrate`.
-    gains : {'constant', 'day_night'}
+    gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     holdout_fraction : float
         Tail of the data kept back to judge open-loop prediction.
@@ -2103,11 +2103,11 @@ def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
         # training simulation exactly (thermorc.separable; the same numbers predict() gives).
         p = result.parameters
         model = result.model
-        day = _daytime(data.index) if result.gains_schedule.get("kind") == "day_night" else None
-        basis = ResponseBasis(model, data, day, np.full(len(data.y), -1), 0)
+        kind = result.gains_schedule.get("kind", "constant")
+        basis = ResponseBasis(model, data, _periods(data.index, kind), np.full(len(data.y), -1), 0)
         rows = basis.rows([p[name] for name in PRESETS[model].parameters])
         coef = _solar_onto_nodes(p["solar_aperture_m2"], p.get("solar_to_envelope_share", 0.0), basis.n_solar)
-        coef += [p["internal_gains_day_w"], p["internal_gains_night_w"]] if day is not None else [p["internal_gains_w"]]
+        coef += [p[name] for name in gains_periods(result.gains_schedule)[1]]
         states = result.extras["estimator"]["initial_states"]
         coef += [states[f"x0_envelope_segment{k}"] for k in range(basis.n_hidden)]
         pred = _sensed(rows[:, 0] + rows[:, 1:] @ np.array(coef), data.segments, data.step_s,

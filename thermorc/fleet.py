@@ -626,7 +626,7 @@ def calibrate_home(home, model="auto", gains="constant", test_days=None):
         The home (a dict is passed to :class:`HomeSpec`).
     model : {'1R1C', '2R2C', '3R2C', 'auto'}
         Model to fit, or ``auto`` to compare all three.
-    gains : {'constant', 'day_night'}
+    gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     test_days : float, optional
         Keep each log's last days back and fill the ``test_*`` columns with how the model
@@ -1348,7 +1348,7 @@ def run_fleet(
         homes run there instead of on a local pool.
     model : {'1R1C', '2R2C', '3R2C', 'auto'}
         Model for every home.
-    gains : {'constant', 'day_night'}
+    gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     test_days : float, optional
         Keep each log's last days back and report how each model predicts them (the

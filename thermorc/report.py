@@ -136,7 +136,7 @@ class HomeFile:
     preset : str
         ``'1R1C'``, ``'2R2C'``, ``'3R2C'`` or ``'auto'``.
     gains : str
-        ``'constant'`` or ``'day_night'``.
+        ``'constant'``, ``'day_night'`` or ``'four_period'``.
     step_s : float or None
         Model step. [s]
     result : str or None
@@ -300,8 +300,9 @@ def parse_home(data, path):
         raise InputError(f"{model.get('preset')!r} (expected one of {', '.join(_PRESETS)})", path=path,
                          column="model.preset")
     gains = str(model.get("gains", "constant")).replace("-", "_")
-    if gains not in ("constant", "day_night"):
-        raise InputError(f"{model.get('gains')!r} (expected 'constant' or 'day-night')", path=path, column="model.gains")
+    if gains not in ("constant", "day_night", "four_period"):
+        raise InputError(f"{model.get('gains')!r} (expected 'constant', 'day-night' or 'four-period')", path=path,
+                         column="model.gains")
     step_min = _number(model.get("step_min"), path, "model.step_min", 1.0, 60.0, "minutes")
     tz = _text(log.get("tz"), path, "log.tz") or site.get("tz")
     if tz is not None:

@@ -24,13 +24,76 @@ import pandas as pd
 from thermorc.errors import InputError
 from thermorc.network import GROUND, PRESETS, Network, preset_parameters, with_ground
 
-__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "RESULT_FORMAT"]
+__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "GAINS_SCHEDULES", "gains_periods", "gains_period_labels", "RESULT_FORMAT"]
 
 #: Identifies the file layout; bump when keys change incompatibly.
 RESULT_FORMAT = "thermorc-calibration/1"
 
+#: Models of the unlogged internal gains: one level, or a level per period of the local day.
+#: ``starts_h`` are the periods' starts [h, local time]; each runs to the next start (the
+#: last one past midnight to the first). The four periods follow the morning and evening
+#: peaks of residential occupancy (common practice; no source).
+GAINS_SCHEDULES = {
+    "constant": {"kind": "constant"},
+    "day_night": {"kind": "day_night", "day_start_h": 7, "night_start_h": 23},
+    "four_period": {"kind": "four_period", "starts_h": [6.0, 9.0, 17.0, 23.0],
+                    "names": ["morning", "daytime", "evening", "night"]},
+}
+
 #: Internal-gain parameters a result may carry besides the network's own. [W]
-GAIN_PARAMETERS = ("internal_gains_w", "internal_gains_day_w", "internal_gains_night_w")
+GAIN_PARAMETERS = ("internal_gains_w", "internal_gains_day_w", "internal_gains_night_w") + tuple(
+    f"internal_gains_{name}_w" for name in GAINS_SCHEDULES["four_period"]["names"] if name != "night")
+
+
+def gains_periods(schedule):
+    """
+    Periods of a gains schedule.
+
+    Parameters
+    ----------
+    schedule : dict
+        A value of :data:`GAINS_SCHEDULES` (as stored in RESULT.json ``gains_schedule``).
+
+    Returns
+    -------
+    starts_h : list of float
+        Start of each period [h, local time], ascending; empty for one constant level.
+    parameters : list of str
+        The gain parameter of each period (``internal_gains_w`` alone for a constant).
+    """
+    kind = schedule.get("kind", "constant")
+    if kind == "constant":
+        return [], ["internal_gains_w"]
+    if kind == "day_night":
+        return ([float(schedule.get("day_start_h", 7)), float(schedule.get("night_start_h", 23))],
+                ["internal_gains_day_w", "internal_gains_night_w"])
+    if kind == "four_period":
+        return [float(h) for h in schedule["starts_h"]], [f"internal_gains_{n}_w" for n in schedule["names"]]
+    raise ValueError(f"gains_schedule kind is {kind!r} (expected one of {', '.join(GAINS_SCHEDULES)})")
+
+
+def gains_period_labels(index, schedule):
+    """
+    Which period of a gains schedule each stamp falls in.
+
+    Parameters
+    ----------
+    index : pandas.DatetimeIndex
+        Stamps (their own local time decides).
+    schedule : dict
+        As for :func:`gains_periods`.
+
+    Returns
+    -------
+    numpy.ndarray of int
+        Position in :func:`gains_periods`' lists; all 0 for a constant.
+    """
+    starts, _ = gains_periods(schedule)
+    if not starts:
+        return np.zeros(len(index), dtype=np.int64)
+    hours = np.asarray(index.hour + index.minute / 60.0, dtype=float)
+    # Before the first start is the last period, run on past midnight.
+    return ((np.searchsorted(starts, hours, side="right") - 1) % len(starts)).astype(np.int64)
 
 
 @dataclass
@@ -65,8 +128,9 @@ class CalibrationResult:
         ``{"names": [...], "space": "log", "matrix": [[...]]}``: covariance of the natural
         logarithms of the positive parameters (how the fit works), or ``None``.
     gains_schedule : dict
-        ``{"kind": "constant"}`` or ``{"kind": "day_night", "day_start_h": 7, "night_start_h": 23}``
-        (local time of the site).
+        A value of :data:`GAINS_SCHEDULES`: ``{"kind": "constant"}``, ``{"kind": "day_night",
+        "day_start_h": 7, "night_start_h": 23}`` or ``{"kind": "four_period", "starts_h": [6, 9,
+        17, 23], "names": [...]}`` (local time of the site).
     solar_input : str
         Which irradiance the aperture multiplies (``"ghi_w_m2"``: global horizontal).
     solar_weights : dict
@@ -158,15 +222,9 @@ class CalibrationResult:
             Mean internal gain over each interval. [W]
         """
         p = self.parameters if parameters is None else parameters
-        if self.gains_schedule.get("kind") == "day_night":
-            hours = index.hour + index.minute / 60.0
-            day = (hours >= self.gains_schedule.get("day_start_h", 7)) & (
-                hours < self.gains_schedule.get("night_start_h", 23)
-            )
-            values = np.where(day, p["internal_gains_day_w"], p["internal_gains_night_w"])
-        else:
-            values = np.full(len(index), float(p.get("internal_gains_w", 0.0)))
-        return pd.Series(values, index=index, name="internal_w")
+        _, names = gains_periods(self.gains_schedule)
+        levels = np.array([float(p.get(name, 0.0)) for name in names])
+        return pd.Series(levels[gains_period_labels(index, self.gains_schedule)], index=index, name="internal_w")
 
     def parameter_draws(self, n_draws, seed=0):
         """
@@ -302,14 +360,13 @@ class CalibrationResult:
             extras={k: v for k, v in data.items() if k not in known},
         )
         kind = result.gains_schedule.get("kind")
-        if kind == "day_night":
-            for key in ("internal_gains_day_w", "internal_gains_night_w"):
+        if kind not in GAINS_SCHEDULES:
+            raise InputError(f"gains_schedule kind is {kind!r} (expected one of {', '.join(GAINS_SCHEDULES)})",
+                             path=path, column="gains_schedule")
+        if kind != "constant":
+            for key in gains_periods(result.gains_schedule)[1]:
                 if key not in clean:
-                    raise InputError(f"day/night internal gains need '{key}'", path=path, column="parameters")
-        elif kind != "constant":
-            raise InputError(
-                f"gains_schedule kind is {kind!r} (expected 'constant' or 'day_night')", path=path, column="gains_schedule"
-            )
+                    raise InputError(f"{'day/night' if kind == 'day_night' else 'four-period'} internal gains need '{key}'", path=path, column="parameters")
         try:
             result.network()
         except InputError as exc:
@@ -377,9 +434,9 @@ class CalibrationResult:
         aperture = self.parameters.get("solar_aperture_m2")
         if aperture:
             lines.append(f"solar aperture          {aperture:.2f} m² on {self.solar_input}" + interval("solar_aperture_m2", fmt="{:.2f}"))
-        for key, label in (("internal_gains_w", "unlogged gains"), ("internal_gains_day_w", "unlogged gains, day"),
-                           ("internal_gains_night_w", "unlogged gains, night")):
+        for key in gains_periods(self.gains_schedule)[1]:
             if key in self.parameters:
+                label = "unlogged gains" + ("" if key == "internal_gains_w" else ", " + key[len("internal_gains_"):-2])
                 lines.append(f"{label:<24}{self.parameters[key]:.0f} W")
         lag = self.parameters.get("sensor_time_constant_s", 0.0)
         if lag > 0:

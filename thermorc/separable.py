@@ -84,8 +84,9 @@ class ResponseBasis:
         Preset name.
     data : thermorc.estimate.CalibrationData
         Inputs ``u`` (outdoor, heating, irradiance, logged gains), measured ``y`` and segments.
-    day : numpy.ndarray of bool or None
-        Rows of the daytime gains level; ``None`` for one constant level.
+    day : tuple or None
+        Gains periods: the period of each row (int array) and the number of periods
+        (:func:`thermorc.result.gains_period_labels`); ``None`` for one constant level.
     block_id : numpy.ndarray of int
         Residual block of each row, ``-1`` for rows not compared.
     n_blocks : int
@@ -110,8 +111,9 @@ class ResponseBasis:
         self.has_solar = bool(data.has_solar)
         self.n_channels = 1 if self.has_solar else 0  # irradiance sequences (one column of u)
         self.n_solar = self.n_channels * self.n_states
-        self.day = None if day is None else np.asarray(day, dtype=float)
-        self.n_gains = 1 if day is None else 2
+        # Gains periods: (row labels, number of periods), or None for one constant level.
+        self.periods = day
+        self.n_gains = 1 if day is None else int(day[1])
         self.segments = list(data.segments)
         self.n_hidden = (self.n_states - 1) * len(self.segments)
         self.n_linear = self.n_solar + self.n_gains + self.n_hidden
@@ -133,7 +135,10 @@ class ResponseBasis:
         seqs = [u[:, 1] + u[:, 3]]  # heating and logged gains both enter the indoor air
         if self.has_solar:
             seqs.append(u[:, 2])
-        seqs += [np.ones(len(data.y))] if self.day is None else [self.day, 1.0 - self.day]
+        if self.periods is None:
+            seqs.append(np.ones(len(data.y)))
+        else:
+            seqs += [(self.periods[0] == j).astype(float) for j in range(self.n_gains)]
         self._seqs = np.ascontiguousarray(seqs)
         self._seg_start = np.array([seg.start for seg in self.segments], dtype=np.int64)
         self._seg_stop = np.array([seg.stop for seg in self.segments], dtype=np.int64)

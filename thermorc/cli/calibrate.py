@@ -31,6 +31,7 @@ class EstimatorChoice(str, enum.Enum):
 class GainsChoice(str, enum.Enum):
     constant = "constant"
     day_night = "day-night"
+    four_period = "four-period"
 
 
 InputFile = Annotated[Path, typer.Argument(help="Log file: CSV, Parquet or Excel.", exists=True, dir_okay=False, show_default=False)]
@@ -51,7 +52,7 @@ def calibrate(
     ground_c: Annotated[Optional[float], typer.Option("--ground-c", help="Constant ground temperature under floors on the ground \\[°C]; part of the heat loss then goes to it.", rich_help_panel="Inputs")] = None,
     ground_share: Annotated[Optional[float], typer.Option("--ground-share", help="Share of the heat loss that goes to the ground (0..0.9); default: from the construction's ground_floor elements.", rich_help_panel="Inputs")] = None,
     model: Annotated[ModelChoice, typer.Option("--model", help="RC model, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
-    gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant, or a day (07-23 h) and a night value.", rich_help_panel="Model")] = GainsChoice.constant,
+    gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant; a day (07-23 h) and a night value; or four periods (06-09, 09-17, 17-23, 23-06 h).", rich_help_panel="Model")] = GainsChoice.constant,
     estimator: Annotated[EstimatorChoice, typer.Option("--estimator", help="Output error (least squares on the open-loop indoor temperature) or prediction error (Kalman-filter likelihood).", rich_help_panel="Model")] = EstimatorChoice.output_error,
     test_days: Annotated[Optional[float], typer.Option("--test-days", help="Keep the log's last days back and report how the model predicts them (validation in RESULT.json).", rich_help_panel="Model")] = None,
     step_min: Annotated[Optional[float], typer.Option("--step-min", min=1.0, max=180.0, help="Model step \\[min]; default: the log's own step.", rich_help_panel="Model")] = None,

@@ -59,7 +59,7 @@ def fleet(
     workers: Annotated[Optional[int], typer.Option("--workers", min=1, help="Processes of the local pool; default: the number of CPUs.", rich_help_panel="Inputs")] = None,
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running Dask distributed scheduler, e.g. tcp://10.0.0.5:8786.", rich_help_panel="Inputs")] = None,
     model: Annotated[ModelChoice, typer.Option("--model", help="RC model for every home, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
-    gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant, or a day (07-23 h) and a night value.", rich_help_panel="Model")] = GainsChoice.constant,
+    gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant; a day (07-23 h) and a night value; or four periods (06-09, 09-17, 17-23, 23-06 h).", rich_help_panel="Model")] = GainsChoice.constant,
     test_days: Annotated[Optional[float], typer.Option("--test-days", help="Keep each log's last days back and report how each home's model predicts them (test_* columns).", rich_help_panel="Model")] = None,
     batch: Annotated[Optional[int], typer.Option("--batch", min=1, help="Homes sent out at a time (an interruption loses at most one batch); default: 8 per worker, at least 32.", rich_help_panel="Inputs")] = None,
     retry_errors: Annotated[bool, typer.Option("--retry-errors", help="On resume, calculate again the homes that ended in error.", rich_help_panel="Inputs")] = False,
