@@ -232,6 +232,22 @@ def test_auto_compares_the_three_presets_and_keeps_the_table():
     assert by_model["1R1C"]["holdout_rmse_k"] > 1.5 * by_model["2R2C"]["holdout_rmse_k"]
     assert res.model in ("2R2C", "3R2C")
     assert sum(row["chosen"] for row in table) == 1
+    record_h = 0.8 * 21 * 24  # the training part, before the held-out fifth
+    for row in table:
+        assert row["slowest_mode_in_record"] == (row["time_constants_h"][0] <= record_h + 0.5)
+
+
+@pytest.mark.parametrize("rows, chosen", [
+    # Rule of calibrate_auto (docs/calibration.md, "Model choice"), worked by hand.
+    ([("1R1C", 0.50, True), ("2R2C", 0.20, True), ("3R2C", 0.195, True)], "2R2C"),  # within 5 % of the best
+    ([("1R1C", 0.50, True), ("2R2C", 0.30, True), ("3R2C", 0.20, True)], "3R2C"),
+    ([("1R1C", 0.50, True), ("2R2C", 0.30, True), ("3R2C", 0.20, False)], "2R2C"),  # its slowest mode outlasts the record
+    ([("1R1C", 0.50, False), ("2R2C", 0.30, False), ("3R2C", 0.20, False)], "3R2C"),  # none is in the record
+    ([("1R1C", math.nan, True), ("2R2C", math.nan, True)], "2R2C"),  # no score at all: the largest
+])
+def test_auto_keeps_the_simplest_adequate_model(rows, chosen):
+    table = [{"model": m, "holdout_rmse_k": rmse, "slowest_mode_in_record": inside} for m, rmse, inside in rows]
+    assert estimate._choose_model(table) == chosen
 
 
 def test_ua_prior_combines_with_the_data_by_their_information():

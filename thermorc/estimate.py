@@ -2017,12 +2017,16 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     Output-error residuals are autocorrelated, which makes the likelihood-ratio test too
     eager to add parameters, so the choice rests on the held-out RMSE: the simplest model
     within 5 % (and 0.02 K) of the best held-out RMSE is kept, and BIC and the tests are
-    shown for the record.
+    shown for the record. A candidate whose slowest time constant is longer than the
+    training record is passed over when another is not: less than one e-fold of that mode
+    was seen, so the data do not determine it, and such a mode tends to stand in for inputs
+    the model lacks (a steady ground, unlogged gains).
     """
     data = log if isinstance(log, CalibrationData) else calibration_data(log, step_s=step_s, path=path)
     n = len(data.y)
     cut = int(round(n * (1 - holdout_fraction)))
     train = data.subset(cut)
+    record_h = len(train.index) * train.step_s / 3600.0
     rows = []
     fitted = {}
     previous = None
@@ -2054,6 +2058,8 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
             "holdout_rmse_k": holdout,
             "heat_loss_coefficient_w_per_k": res.heat_loss_coefficient_w_per_k,
             "time_constants_h": res.time_constants_h,
+            # Less than one e-fold of the slowest mode in the record: the data do not fix it.
+            "slowest_mode_in_record": bool(res.time_constants_h[0] <= record_h),
         })
     usable = [r for r in rows if "skipped" not in r]
     if not usable:
@@ -2067,13 +2073,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         big["lr_test_vs"] = small["model"]
         big["lr_statistic"] = stat
         big["lr_p_value"] = p
-    scores = [r["holdout_rmse_k"] for r in usable if math.isfinite(r["holdout_rmse_k"])]
-    best = min(scores) if scores else math.nan
-    chosen = usable[-1]["model"]
-    for r in usable:
-        if math.isfinite(r["holdout_rmse_k"]) and r["holdout_rmse_k"] <= max(best * 1.05, best + 0.02):
-            chosen = r["model"]
-            break
+    chosen = _choose_model(usable)
     for r in usable:
         r["chosen"] = r["model"] == chosen
     start = fitted[chosen].parameters
@@ -2085,10 +2085,37 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     final.extras["model_comparison"] = {
         "rows": rows,
         "holdout_fraction": holdout_fraction,
-        "rule": "simplest model within 5 % (or 0.02 K) of the best held-out open-loop RMSE",
+        "rule": "simplest model within 5 % (or 0.02 K) of the best held-out open-loop RMSE, among those whose "
+                "slowest time constant is within the training record",
         "chosen": chosen,
     }
     return final
+
+
+def _choose_model(rows):
+    """
+    The model :func:`calibrate_auto` keeps, from its comparison rows (simplest first).
+
+    Parameters
+    ----------
+    rows : list of dict
+        With ``model``, ``holdout_rmse_k`` [K] and ``slowest_mode_in_record`` (bool).
+
+    Returns
+    -------
+    str
+        The simplest model within 5 % (or 0.02 K) of the best held-out RMSE, among those
+        whose slowest mode is within the record (all of them when none is).
+    """
+    # A model whose slowest mode the record does not hold is not adequate, however well it
+    # predicts the tail.
+    adequate = [r for r in rows if r["slowest_mode_in_record"]] or rows
+    scores = [r["holdout_rmse_k"] for r in adequate if math.isfinite(r["holdout_rmse_k"])]
+    best = min(scores) if scores else math.nan
+    for r in adequate:
+        if math.isfinite(r["holdout_rmse_k"]) and r["holdout_rmse_k"] <= max(best * 1.05, best + 0.02):
+            return r["model"]
+    return adequate[-1]["model"]
 
 
 def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
