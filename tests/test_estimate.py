@@ -433,3 +433,8 @@ def test_four_period_gains_are_recovered_from_their_own_model():
     del body["parameters"]["internal_gains_evening_w"]
     with pytest.raises(InputError, match="four-period internal gains need 'internal_gains_evening_w'"):
         CalibrationResult.from_dict(body)
+    for bad in ([6, 9, 17], [6, 17, 9, 23], [6, 9, 17, 25], "6,9,17,23"):
+        body = res.to_dict()
+        body["gains_schedule"]["starts_h"] = bad
+        with pytest.raises(InputError, match="ascending hours 0-24"):
+            CalibrationResult.from_dict(body)

@@ -325,7 +325,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
     for seg in data.segments:
         observed[seg] = np.isfinite(data.y[seg])
     block_id, n_blocks = _blocks(data, observed, 1)
-    basis = ResponseBasis(model, data, _periods(data.index, gains), block_id, n_blocks)
+    basis = ResponseBasis(model, data, _periods(data.index, GAINS_SCHEDULES[gains]), block_id, n_blocks)
     bounds = [R_BOUNDS_K_PER_W if name.startswith("r_") else C_BOUNDS_J_PER_K for name in PRESETS[model].parameters]
     rc_lo, rc_hi = np.log(np.array(bounds)).T
     tau_lo, tau_hi = math.log(0.1 * data.step_s), math.log(SENSOR_MAX_TAU_S)
@@ -586,11 +586,10 @@ class _Param:
     start: float
 
 
-def _periods(index, gains):
+def _periods(index, schedule):
     """Gains period of each row and the number of periods; None for one constant level."""
-    if gains == "constant":
+    if schedule.get("kind", "constant") == "constant":
         return None
-    schedule = GAINS_SCHEDULES[gains]
     return gains_period_labels(index, schedule), len(gains_periods(schedule)[1])
 
 
@@ -604,7 +603,6 @@ class _Layout:
 
     def __init__(self, model, data: CalibrationData, gains, start):
         self.model = model
-        self.gains = gains
         self.data = data
         self.params: list[_Param] = []
         preset = PRESETS[model]
@@ -630,7 +628,7 @@ class _Layout:
                 if guess is None:
                     guess = 0.5 * (t0 + data.u[seg.start, 0])
                 self.params.append(_Param(f"x0_{node}_segment{k}", False, *STATE_BOUNDS_C, float(np.clip(guess, -40, 50))))
-        self.periods = _periods(data.index, gains)
+        self.periods = _periods(data.index, GAINS_SCHEDULES[gains])
 
     def _states(self):
         return ("indoor",) if self.model == "1R1C" else ("indoor", "envelope")
@@ -2130,8 +2128,7 @@ def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
         # training simulation exactly (thermorc.separable; the same numbers predict() gives).
         p = result.parameters
         model = result.model
-        kind = result.gains_schedule.get("kind", "constant")
-        basis = ResponseBasis(model, data, _periods(data.index, kind), np.full(len(data.y), -1), 0)
+        basis = ResponseBasis(model, data, _periods(data.index, result.gains_schedule), np.full(len(data.y), -1), 0)
         rows = basis.rows([p[name] for name in PRESETS[model].parameters])
         coef = _solar_onto_nodes(p["solar_aperture_m2"], p.get("solar_to_envelope_share", 0.0), basis.n_solar)
         coef += [p[name] for name in gains_periods(result.gains_schedule)[1]]

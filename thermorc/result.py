@@ -363,6 +363,14 @@ class CalibrationResult:
         if kind not in GAINS_SCHEDULES:
             raise InputError(f"gains_schedule kind is {kind!r} (expected one of {', '.join(GAINS_SCHEDULES)})",
                              path=path, column="gains_schedule")
+        if kind == "four_period":
+            starts, names = result.gains_schedule.get("starts_h"), result.gains_schedule.get("names")
+            ok = (isinstance(starts, list) and isinstance(names, list) and len(starts) == len(names) >= 2
+                  and all(isinstance(h, (int, float)) and not isinstance(h, bool) and 0 <= h < 24 for h in starts)
+                  and all(a < b for a, b in zip(starts, starts[1:])) and all(isinstance(n, str) for n in names))
+            if not ok:
+                raise InputError("expected 'starts_h' (ascending hours 0-24) and as many 'names'",
+                                 path=path, column="gains_schedule")
         if kind != "constant":
             for key in gains_periods(result.gains_schedule)[1]:
                 if key not in clean:

@@ -84,7 +84,7 @@ class ResponseBasis:
         Preset name.
     data : thermorc.estimate.CalibrationData
         Inputs ``u`` (outdoor, heating, irradiance, logged gains), measured ``y`` and segments.
-    day : tuple or None
+    periods : tuple or None
         Gains periods: the period of each row (int array) and the number of periods
         (:func:`thermorc.result.gains_period_labels`); ``None`` for one constant level.
     block_id : numpy.ndarray of int
@@ -103,7 +103,7 @@ class ResponseBasis:
     (:func:`thermorc.simulate.sensed_temperature`), row by row, before the block means.
     """
 
-    def __init__(self, model, data, day, block_id, n_blocks):
+    def __init__(self, model, data, periods, block_id, n_blocks):
         self.model = model
         self.n_states = 1 if model == "1R1C" else 2
         self.data = data
@@ -112,8 +112,8 @@ class ResponseBasis:
         self.n_channels = 1 if self.has_solar else 0  # irradiance sequences (one column of u)
         self.n_solar = self.n_channels * self.n_states
         # Gains periods: (row labels, number of periods), or None for one constant level.
-        self.periods = day
-        self.n_gains = 1 if day is None else int(day[1])
+        self.periods = periods
+        self.n_gains = 1 if periods is None else int(periods[1])
         self.segments = list(data.segments)
         self.n_hidden = (self.n_states - 1) * len(self.segments)
         self.n_linear = self.n_solar + self.n_gains + self.n_hidden
