@@ -133,3 +133,23 @@ def test_a_damaged_ground_record_is_refused_in_one_line(log_csv, tmp_path, groun
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1 and f"RESULT.json, column '{where}'" in lines[0], r.stderr
     assert not sim.exists()
+
+
+def test_a_home_file_ground_reaches_the_calibration(tmp_path):
+    # The report calibrates as calibrate --ground-c/--ground-share does on the same log.
+    import warnings
+
+    from thermorc.chain import calibrate_files
+    from thermorc.report import _calibrate, parse_home
+
+    log, _ = ground_log(seed=4, days=10)
+    write_csv(tmp_path / "log.csv", log.rename_axis("time"), float_format="%.10g")
+    home = parse_home({"log": {"file": "log.csv"}, "ground_c": 8, "ground_share": 0.3, "model": {"preset": "2R2C"}},
+                      path=str(tmp_path / "home.toml"))
+    assert (home.ground_c, home.ground_share) == (8.0, 0.3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        got = _calibrate(home, lambda *_: None)
+        want = calibrate_files(tmp_path / "log.csv", model="2R2C", ground_c=8.0, ground_share=0.3)
+    assert got.ground["share"] == 0.3 and got.heat_loss_coefficient_w_per_k == pytest.approx(
+        want.heat_loss_coefficient_w_per_k, rel=1e-9)

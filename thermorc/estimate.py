@@ -90,7 +90,8 @@ GAINS_AT_ZERO_ADVICE = (
     "The unlogged internal gains ended at 0 W: the home loses heat that no boundary of the model "
     "carries, most often a floor on the ground (soil at a steady temperature looks like a negative gain). "
     "Give the ground temperature and its share of the heat loss (--ground-c with --ground-share, or a "
-    "construction with its ground floor); without them UA may come out below the conductance to outdoor air.")
+    "construction with its ground floor; ground_c and ground_share in a home file or fleet manifest); "
+    "without them UA may come out below the conductance to outdoor air.")
 # Residuals are compared as hourly means: thermostat cycling within the hour is not the
 # dynamics the presets are for, while the simulation still runs at the log's own step.
 BLOCK_S = 3600.0

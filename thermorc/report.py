@@ -92,7 +92,7 @@ REPORT_CAUTIONS = (
 )
 
 _HOME_KEYS = {"name", "floor_area_m2", "log", "weather", "site", "construction", "schedule", "strategies", "model",
-              "description", "window_areas"}
+              "description", "window_areas", "ground_c", "ground_share"}
 _LOG_KEYS = {"file", "column_map", "tz", "interval"}
 _SITE_KEYS = {"name", "latitude", "longitude", "altitude_m", "tz", "file"}
 _MODEL_KEYS = {"preset", "gains", "step_min", "result"}
@@ -133,6 +133,9 @@ class HomeFile:
     window_areas : str or dict or None
         Window area per façade, ``"S=8,E=3,W=3,N=4"`` or a table [m²]: weights the façades of
         the solar input (:func:`thermorc.chain.parse_window_areas`).
+    ground_c, ground_share : float or None
+        Ground temperature [°C] and the share of the heat loss that goes to it, as
+        ``calibrate --ground-c/--ground-share`` (the share may come from the construction).
     preset : str
         ``'1R1C'``, ``'2R2C'``, ``'3R2C'`` or ``'auto'``.
     gains : str
@@ -156,6 +159,8 @@ class HomeFile:
     strategies: str | None = None
     floor_area_m2: float | None = None
     window_areas: object = None
+    ground_c: float | None = None
+    ground_share: float | None = None
     preset: str = "auto"
     gains: str = "constant"
     step_s: float | None = None
@@ -320,6 +325,7 @@ def parse_home(data, path):
             parse_window_areas(window_areas, name="window_areas")
         except InputError as exc:
             raise exc.located(path=path, column="window_areas") from None
+    ground_c, ground_share = _ground_keys(data, path)
     home = HomeFile(
         path=path,
         name=_text(data.get("name"), path, "name") or os.path.splitext(os.path.basename(path))[0],
@@ -334,6 +340,8 @@ def parse_home(data, path):
         strategies=_file(data.get("strategies"), path, "strategies"),
         floor_area_m2=_number(data.get("floor_area_m2"), path, "floor_area_m2", 1.0, 1e5, "m2"),
         window_areas=window_areas,
+        ground_c=ground_c,
+        ground_share=ground_share,
         preset=preset,
         gains=gains,
         step_s=None if step_min is None else step_min * 60.0,
@@ -780,6 +788,29 @@ def _ljung_box_table(result, residuals, step_s):
     return pd.DataFrame(rows).set_index("lag_steps") if rows else None
 
 
+def _ground_keys(data, path):
+    """``ground_c`` and ``ground_share`` of a home file, checked as the command-line options are."""
+    from thermorc.estimate import check_ground_c, check_ground_share
+
+    values = {}
+    for key, check in (("ground_c", check_ground_c), ("ground_share", check_ground_share)):
+        raw = data.get(key)
+        if raw is None:
+            continue
+        if isinstance(raw, bool) or not isinstance(raw, (int, float)):
+            raise InputError(f"{raw!r} is not a number", path=path, column=key)
+        try:
+            values[key] = check(raw)
+        except InputError as exc:
+            raise exc.located(path=path, column=key) from None
+    if "ground_share" in values and "ground_c" not in values:
+        raise InputError("a ground share needs the ground temperature (ground_c) too", path=path, column="ground_share")
+    if "ground_c" in values and "ground_share" not in values and data.get("construction") is None:
+        raise InputError("a ground temperature needs its share of the heat loss (ground_share, or a construction "
+                         "with its ground floor)", path=path, column="ground_c")
+    return values.get("ground_c"), values.get("ground_share")
+
+
 def _calibrate(home, progress):
     from thermorc.chain import calibrate_files
 
@@ -788,6 +819,7 @@ def _calibrate(home, progress):
         home.log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
         site=home.site if "latitude" in home.site else None, construction=home.construction,
         model=home.preset, gains=home.gains, step_s=home.step_s, window_areas=home.window_areas,
+        ground_c=home.ground_c, ground_share=home.ground_share,
     )
 
 
