@@ -138,10 +138,10 @@ def test_example_home_file_reads():
     ({"log": {"file": "log.csv"}, "window_areas": {"S": -1}}, "window_areas", "0 m2 or more"),
     ({"log": {"file": "log.csv"}, "window_areas": "S=8,E"}, "window_areas", "FACING=AREA"),
     ({"log": {"file": "log.csv"}, "ground_c": 80, "ground_share": 0.1}, "ground_c", "not plausible"),
-    ({"log": {"file": "log.csv"}, "ground_c": "8"}, "ground_c", "not a number"),
+    ({"log": {"file": "log.csv"}, "ground_c": "8"}, "ground_c", "expected a number"),
     ({"log": {"file": "log.csv"}, "ground_c": 8, "ground_share": 0.95}, "ground_share", "outside 0..0.9"),
-    ({"log": {"file": "log.csv"}, "ground_share": 0.1}, "ground_share", "needs the ground temperature"),
-    ({"log": {"file": "log.csv"}, "ground_c": 8}, "ground_c", "needs its share"),
+    ({"log": {"file": "log.csv"}, "ground_share": 0.1}, "ground_share", "needs ground_c"),
+    ({"log": {"file": "log.csv"}, "ground_c": 8}, "ground_c", "needs ground_share"),
 ])
 def test_bad_home_files_name_the_key(data, column, match):
     path = str(DEMO / "home.toml")  # not read: only its folder anchors the relative paths

@@ -466,6 +466,39 @@ def check_ground_c(value):
     return t
 
 
+def check_ground_keys(ground, has_construction, where):
+    """
+    ``ground_c`` and ``ground_share`` of a home file or manifest row, checked as the options are.
+
+    Parameters
+    ----------
+    ground : dict
+        The keys given, as numbers (``ground_c`` [°C], ``ground_share`` [unitless]).
+    has_construction : bool
+        Whether a construction can supply the share.
+    where : callable
+        ``where(key)`` -> keyword arguments of :class:`InputError` that locate the key.
+
+    Returns
+    -------
+    tuple
+        ``(ground_c, ground_share)``, None where not given.
+    """
+    if "ground_share" in ground and "ground_c" not in ground:
+        raise InputError("ground_share needs ground_c (the ground temperature) too", **where("ground_share"))
+    if "ground_c" in ground and "ground_share" not in ground and not has_construction:
+        raise InputError("ground_c needs ground_share, or a construction with a ground_floor element",
+                         **where("ground_c"))
+    out = {}
+    for key, check in (("ground_c", check_ground_c), ("ground_share", check_ground_share)):
+        if key in ground:
+            try:
+                out[key] = check(ground[key])
+            except InputError as exc:
+                raise InputError(exc.message, **where(key)) from None
+    return out.get("ground_c"), out.get("ground_share")
+
+
 def check_ground_share(value):
     """A share of the heat loss to the ground, 0..:data:`MAX_GROUND_SHARE`, or :class:`InputError`."""
     f = float(value)

@@ -389,19 +389,9 @@ def _home_from_record(values, row, key_rows, path, base):
             ground[key] = float(value) if not isinstance(value, bool) else math.nan
         except (TypeError, ValueError, OverflowError):
             raise InputError(f"{key} is {value!r} (expected a number)", **where(key)) from None
-    if "ground_share" in ground and "ground_c" not in ground:
-        raise InputError("ground_share needs ground_c (the ground temperature) too", **where("ground_share"))
-    if "ground_c" in ground and "ground_share" not in ground and paths["construction"] is None:
-        raise InputError("ground_c needs ground_share, or a construction with a ground_floor element",
-                         **where("ground_c"))
-    from thermorc.estimate import check_ground_c, check_ground_share
+    from thermorc.estimate import check_ground_keys
 
-    for key, check in (("ground_c", check_ground_c), ("ground_share", check_ground_share)):
-        if key in ground:
-            try:
-                check(ground[key])
-            except InputError as exc:
-                raise InputError(exc.message, **where(key)) from None
+    check_ground_keys(ground, paths["construction"] is not None, where)
     window_areas = _text(values, "window_areas", where)
     if window_areas is not None:
         try:

@@ -789,26 +789,19 @@ def _ljung_box_table(result, residuals, step_s):
 
 
 def _ground_keys(data, path):
-    """``ground_c`` and ``ground_share`` of a home file, checked as the command-line options are."""
-    from thermorc.estimate import check_ground_c, check_ground_share
+    """``ground_c`` and ``ground_share`` of a home file (:func:`thermorc.estimate.check_ground_keys`)."""
+    from thermorc.estimate import check_ground_keys
 
-    values = {}
-    for key, check in (("ground_c", check_ground_c), ("ground_share", check_ground_share)):
+    ground = {}
+    for key in ("ground_c", "ground_share"):
         raw = data.get(key)
         if raw is None:
             continue
         if isinstance(raw, bool) or not isinstance(raw, (int, float)):
-            raise InputError(f"{raw!r} is not a number", path=path, column=key)
-        try:
-            values[key] = check(raw)
-        except InputError as exc:
-            raise exc.located(path=path, column=key) from None
-    if "ground_share" in values and "ground_c" not in values:
-        raise InputError("a ground share needs the ground temperature (ground_c) too", path=path, column="ground_share")
-    if "ground_c" in values and "ground_share" not in values and data.get("construction") is None:
-        raise InputError("a ground temperature needs its share of the heat loss (ground_share, or a construction "
-                         "with its ground floor)", path=path, column="ground_c")
-    return values.get("ground_c"), values.get("ground_share")
+            raise InputError(f"{key} is {raw!r} (expected a number)", path=path, column=key)
+        ground[key] = raw
+    return check_ground_keys(ground, data.get("construction") is not None,
+                             lambda key: {"path": path, "column": key})
 
 
 def _calibrate(home, progress):
