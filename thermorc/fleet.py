@@ -1525,8 +1525,7 @@ def summarise(results):
     from thermorc.diagnose import GUIDELINE14
     from thermorc.estimate import MIN_HEATING_SHARE
 
-    columns = list(dict.fromkeys([q for q, _ in SUMMARY_QUANTITIES] + ["status", "n_warnings", "model",
-                                                                       "test_cv_rmse_pct", "test_nmbe_pct"]))
+    columns = [q for q, _ in SUMMARY_QUANTITIES] + ["status", "n_warnings", "model"]
     if isinstance(results, pd.DataFrame):
         frame = results.reindex(columns=columns)
     else:

@@ -40,10 +40,6 @@ GAINS_SCHEDULES = {
                     "names": ["morning", "daytime", "evening", "night"]},
 }
 
-#: Internal-gain parameters a result may carry besides the network's own. [W]
-GAIN_PARAMETERS = ("internal_gains_w", "internal_gains_day_w", "internal_gains_night_w") + tuple(
-    f"internal_gains_{name}_w" for name in GAINS_SCHEDULES["four_period"]["names"] if name != "night")
-
 
 def gains_periods(schedule):
     """
@@ -70,6 +66,10 @@ def gains_periods(schedule):
     if kind == "four_period":
         return [float(h) for h in schedule["starts_h"]], [f"internal_gains_{n}_w" for n in schedule["names"]]
     raise ValueError(f"gains_schedule kind is {kind!r} (expected one of {', '.join(GAINS_SCHEDULES)})")
+
+
+#: Internal-gain parameters a result may carry besides the network's own. [W]
+GAIN_PARAMETERS = tuple(dict.fromkeys(name for schedule in GAINS_SCHEDULES.values() for name in gains_periods(schedule)[1]))
 
 
 def gains_period_labels(index, schedule):
