@@ -84,3 +84,40 @@ def test_four_period_gains_from_the_command_line(log_csv, tmp_path):
     r = runner.invoke(app, ["simulate", str(out), "--log", str(log_csv), "--out", str(sim)])
     assert r.exit_code == 0, r.output
     assert sim.exists()
+
+
+def test_the_households_own_gains_hours_from_the_command_line(log_csv, tmp_path):
+    # --gains-hours sets the periods' starts (here a night period after midnight); they are
+    # kept in RESULT.json, so simulate rebuilds the household's own day.
+    out = tmp_path / "RESULT.json"
+    r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--gains", "four-period",
+                            "--gains-hours", "9,12,20,2", "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    body = json.loads(out.read_text(encoding="utf-8"))
+    assert body["gains_schedule"]["starts_h"] == [9, 12, 20, 2]
+    r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--gains", "day-night",
+                            "--gains-hours", "8,22.5", "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    body = json.loads(out.read_text(encoding="utf-8"))
+    assert (body["gains_schedule"]["day_start_h"], body["gains_schedule"]["night_start_h"]) == (8, 22.5)
+    sim = tmp_path / "SIM.csv"
+    assert runner.invoke(app, ["simulate", str(out), "--log", str(log_csv), "--out", str(sim)]).exit_code == 0
+
+
+@pytest.mark.parametrize("gains, hours, words", [
+    ("four-period", "9,12,20", "4 start hours"),
+    ("four-period", "9,20,12,2", "order of the day"),
+    ("four-period", "6,9,17,24", "order of the day"),
+    ("four-period", "six,9,17,23", "separated by commas"),
+    ("day-night", "7", "2 start hours"),
+    ("constant", "7,23", "one constant level has no hours"),
+])
+def test_gains_hours_that_do_not_fit_the_periods_are_refused(log_csv, tmp_path, gains, hours, words):
+    out = tmp_path / "RESULT.json"
+    r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--gains", gains, "--gains-hours", hours,
+                            "--out", str(out)])
+    assert r.exit_code == 2
+    errors = [line for line in r.stderr.splitlines() if line.startswith("thermorc: error:")]
+    assert len(errors) == 1 and words in errors[0] and "--gains-hours" in errors[0]
+    assert "Traceback" not in r.output
+    assert not out.exists()

@@ -6,6 +6,7 @@ simulated from known parameters, or the exact steady state and modes of a much f
 solution).
 """
 
+import json
 import math
 import warnings
 
@@ -391,14 +392,12 @@ def test_the_sensor_lag_of_a_cycling_log_is_recovered_and_used_by_predict():
     assert "indoor_node_c" in pred.columns
 
 
-def test_four_period_gains_are_recovered_from_their_own_model():
-    # Simulate-and-fit: a 2R2C whose unlogged gains step between four levels over the day
-    # (morning 06-09, daytime 09-17, evening 17-23, night 23-06 h, set here by hand). The
-    # four-period fit returns the levels and UA; the result rebuilds the same gains and
-    # predicts what the fit modelled; a file missing one level is refused.
-    from thermorc.result import CalibrationResult
+FOUR_LEVELS_W = {"morning": 500.0, "daytime": 150.0, "evening": 800.0, "night": 250.0}
 
-    rng = np.random.default_rng(11)
+
+def _four_period_log(label_of_hour, seed=11):
+    """21 days of a 2R2C at 15 min whose unlogged gains step between FOUR_LEVELS_W by hour."""
+    rng = np.random.default_rng(seed)
     net = Network.from_preset("2R2C", TRUE_2R2C)
     step_s = 900.0
     index = pd.date_range("2025-01-01", periods=int(21 * 86400 / step_s), freq="15min", tz="UTC")
@@ -407,15 +406,26 @@ def test_four_period_gains_are_recovered_from_their_own_model():
     outdoor = 2 + 5 * np.sin(2 * np.pi * (hours - 15) / 24) + np.cumsum(rng.normal(0, 0.1, n))
     ghi = np.clip(500 * np.sin(2 * np.pi * (hours % 24 - 7) / 20), 0, None) * np.repeat(rng.uniform(0.2, 1, 22), 96)[:n]
     heat = np.repeat(rng.choice([0.0, 2000.0, 5000.0], n // 4 + 1), 4)[:n]
-    hour = index.hour
-    truth = {"morning": 500.0, "daytime": 150.0, "evening": 800.0, "night": 250.0}
-    label = np.select([(hour >= 6) & (hour < 9), (hour >= 9) & (hour < 17), (hour >= 17) & (hour < 23)],
-                      ["morning", "daytime", "evening"], "night")
-    gains = np.array([truth[k] for k in label])
+    label = label_of_hour(np.asarray(index.hour))
+    gains = np.array([FOUR_LEVELS_W[k] for k in label])
     inputs = pd.DataFrame({"outdoor_c": outdoor, "heating_w": heat, "solar_w_m2": ghi, "internal_w": gains}, index=index)
     sim = simulate(net, inputs, x0=[19.0, 12.0], interval_means=False)
     log = pd.DataFrame({"indoor_c": sim.temperatures_c["indoor"].to_numpy() + rng.normal(0, 0.03, n),
                         "heating_w": heat, "outdoor_c": outdoor, "ghi_w_m2": ghi}, index=index)
+    return log, index, label
+
+
+def test_four_period_gains_are_recovered_from_their_own_model():
+    # Simulate-and-fit: a 2R2C whose unlogged gains step between four levels over the day
+    # (morning 06-09, daytime 09-17, evening 17-23, night 23-06 h, set here by hand). The
+    # four-period fit returns the levels and UA; the result rebuilds the same gains and
+    # predicts what the fit modelled; a file missing one level is refused.
+    from thermorc.result import CalibrationResult
+
+    log, index, label = _four_period_log(lambda hour: np.select(
+        [(hour >= 6) & (hour < 9), (hour >= 9) & (hour < 17), (hour >= 17) & (hour < 23)],
+        ["morning", "daytime", "evening"], "night"))
+    truth = FOUR_LEVELS_W
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ThermorcWarning)
         res = estimate.calibrate(log, model="2R2C", gains="four_period")
@@ -436,5 +446,34 @@ def test_four_period_gains_are_recovered_from_their_own_model():
     for bad in ([6, 9, 17], [6, 17, 9, 23], [6, 9, 17, 25], "6,9,17,23"):
         body = res.to_dict()
         body["gains_schedule"]["starts_h"] = bad
-        with pytest.raises(InputError, match="ascending hours 0-24"):
+        with pytest.raises(InputError, match="hours 0-24 in the order of the day"):
             CalibrationResult.from_dict(body)
+
+
+def test_four_period_gains_take_the_households_own_hours():
+    # A household that keeps late hours (morning 09-12, daytime 12-20, evening 20-02, night
+    # 02-09 h, set here by hand): with its hours given, the night period starting after
+    # midnight, the fit returns the four levels; with the default hours (06, 09, 17, 23) it
+    # cannot. The hours travel with RESULT.json, so the rebuilt gains are the household's.
+    from thermorc.result import CalibrationResult, gains_schedule
+
+    log, index, label = _four_period_log(lambda hour: np.select(
+        [(hour >= 9) & (hour < 12), (hour >= 12) & (hour < 20), (hour >= 20) | (hour < 2)],
+        ["morning", "daytime", "evening"], "night"))
+    schedule = gains_schedule("four_period", [9, 12, 20, 2])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log, model="2R2C", gains=schedule)
+        usual = estimate.calibrate(log, model="2R2C", gains="four_period")
+    for name, value in FOUR_LEVELS_W.items():
+        assert res.parameters[f"internal_gains_{name}_w"] == pytest.approx(value, abs=15.0), name
+    assert res.fit["rmse_k"] < 0.5 * usual.fit["rmse_k"]
+    again = CalibrationResult.from_dict(json.loads(json.dumps(res.to_dict())))
+    assert again.gains_schedule["starts_h"] == [9.0, 12.0, 20.0, 2.0]
+    np.testing.assert_allclose(again.internal_gains_w(index).to_numpy(), [FOUR_LEVELS_W[k] for k in label], atol=15.0)
+    with pytest.raises(InputError, match="4 start hours"):
+        gains_schedule("four_period", [9, 12, 20])
+    with pytest.raises(InputError, match="order of the day"):
+        gains_schedule("four_period", [9, 20, 12, 2])
+    with pytest.raises(InputError, match="one constant level has no hours"):
+        gains_schedule("constant", [7])

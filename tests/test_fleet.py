@@ -664,3 +664,30 @@ def test_cli_test_days_must_be_positive(fleet_dir, tmp_path):
     r = runner.invoke(app, ["fleet", str(root / "homes.csv"), "--out", str(out), "--test-days", "0", "--workers", "1"])
     assert r.exit_code == 2 and "--test-days 0 is not allowed" in r.output
     assert len(r.output.strip().splitlines()) == 1 and not out.exists()
+
+
+def test_gains_hours_reach_every_home_and_its_fingerprint(fleet_dir, tmp_path):
+    # fleet --gains four-period --gains-hours is calibrate's per home; other hours are another
+    # calculation on resume, and hours that do not fit the periods stop the run in one line.
+    from thermorc.result import gains_schedule
+
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(f"id,log,site\nh1,{root / 'logs' / 'h1.csv'},\"{SITE}\"\n")
+    homes = read_manifest(manifest)
+    late = gains_schedule("four_period", [9, 12, 20, 2])
+    assert input_fingerprint(homes[0], model="2R2C", gains=late) != input_fingerprint(homes[0], model="2R2C",
+                                                                                     gains="four_period")
+    out = tmp_path / "R.parquet"
+    result = runner.invoke(app, ["fleet", str(manifest), "--out", str(out), "--workers", "1", "--model", "2R2C",
+                                 "--gains", "four-period", "--gains-hours", "9,12,20,2", "--quiet"])
+    assert result.exit_code == 0, result.output
+    row = pd.read_parquet(out).iloc[0]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        single = calibrate_files(root / "logs" / "h1.csv", site=SITE, model="2R2C", gains=late)
+    assert row["status"] == "ok" and row["ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
+    bad = runner.invoke(app, ["fleet", str(manifest), "--out", str(tmp_path / "B.parquet"), "--gains-hours", "7,23"])
+    assert bad.exit_code == 2
+    assert bad.stderr.strip().startswith("thermorc: error: --gains-hours need gains by day and night")
+    assert not (tmp_path / "B.parquet").exists()

@@ -142,6 +142,9 @@ def test_example_home_file_reads():
     ({"log": {"file": "log.csv"}, "ground_c": 8, "ground_share": 0.95}, "ground_share", "outside 0..0.9"),
     ({"log": {"file": "log.csv"}, "ground_share": 0.1}, "ground_share", "needs ground_c"),
     ({"log": {"file": "log.csv"}, "ground_c": 8}, "ground_c", "needs ground_share"),
+    ({"log": {"file": "log.csv"}, "model": {"gains_hours": [7, 23]}}, "model.gains_hours", "no hours"),
+    ({"log": {"file": "log.csv"}, "model": {"gains": "day-night", "gains_hours": [23, 7, 12]}}, "model.gains_hours",
+     "2 start hours"),
 ])
 def test_bad_home_files_name_the_key(data, column, match):
     path = str(DEMO / "home.toml")  # not read: only its folder anchors the relative paths
@@ -157,6 +160,15 @@ def test_window_areas_of_a_home_file_as_a_table_or_a_text():
     from thermorc.chain import parse_window_areas
 
     assert parse_window_areas(table.window_areas) == parse_window_areas(text.window_areas)
+
+
+def test_a_home_file_gives_the_households_gains_hours():
+    path = str(DEMO / "home.toml")
+    home = parse_home({"log": {"file": "log.csv"}, "model": {"gains": "four-period", "gains_hours": [9, 12, 20, 2]}},
+                      path=path)
+    assert home.gains == {"kind": "four_period", "starts_h": [9.0, 12.0, 20.0, 2.0],
+                          "names": ["morning", "daytime", "evening", "night"]}
+    assert parse_home({"log": {"file": "log.csv"}, "model": {"gains": "day-night"}}, path=path).gains == "day_night"
 
 
 # -- the whole report on the invented demo home ----------------------------------------------

@@ -59,7 +59,7 @@ from thermorc.errors import (
     NetworkError,
 )
 from thermorc.network import PRESETS, Network, modes_of
-from thermorc.result import GAINS_SCHEDULES, CalibrationResult, gains_period_labels, gains_periods
+from thermorc.result import CalibrationResult, gains_period_labels, gains_periods, gains_schedule
 from thermorc.separable import ResponseBasis, preset_matrices, symmetric_modes
 from thermorc.simulate import _setpoint_steady_state, heater_power, run_modes, sensed_temperature
 
@@ -297,7 +297,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
         Preset.
     data : CalibrationData
         The log.
-    gains : {'constant', 'day_night', 'four_period'}
+    gains : {'constant', 'day_night', 'four_period'} or dict
         Model of unlogged internal gains.
     theta_rc : numpy.ndarray
         Natural logarithms of the preset's R and C from the hourly fit (the start).
@@ -326,7 +326,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
     for seg in data.segments:
         observed[seg] = np.isfinite(data.y[seg])
     block_id, n_blocks = _blocks(data, observed, 1)
-    basis = ResponseBasis(model, data, _periods(data.index, GAINS_SCHEDULES[gains]), block_id, n_blocks)
+    basis = ResponseBasis(model, data, _periods(data.index, gains_schedule(gains)), block_id, n_blocks)
     bounds = [R_BOUNDS_K_PER_W if name.startswith("r_") else C_BOUNDS_J_PER_K for name in PRESETS[model].parameters]
     rc_lo, rc_hi = np.log(np.array(bounds)).T
     tau_lo, tau_hi = math.log(0.1 * data.step_s), math.log(SENSOR_MAX_TAU_S)
@@ -648,7 +648,7 @@ class _Layout:
             if model != "1R1C":
                 # Sun lands on floors and furniture as much as on the air: let the data split it.
                 self.params.append(_Param("solar_to_envelope_share", False, 0.0, 1.0, start.get("solar_to_envelope_share", 0.3)))
-        self.gains_names = gains_periods(GAINS_SCHEDULES[gains])[1]
+        self.gains_names = gains_periods(gains_schedule(gains))[1]
         for name in self.gains_names:
             self.params.append(_Param(name, False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
         self.n_physical = len(self.params)
@@ -662,7 +662,7 @@ class _Layout:
                 if guess is None:
                     guess = 0.5 * (t0 + data.u[seg.start, 0])
                 self.params.append(_Param(f"x0_{node}_segment{k}", False, *STATE_BOUNDS_C, float(np.clip(guess, -40, 50))))
-        self.periods = _periods(data.index, GAINS_SCHEDULES[gains])
+        self.periods = _periods(data.index, gains_schedule(gains))
 
     def _states(self):
         return ("indoor",) if self.model == "1R1C" else ("indoor", "envelope")
@@ -1286,8 +1286,9 @@ def calibrate(
         optionally ``ghi_w_m2`` [W m⁻²] and ``internal_gains_w`` [W].
     model : {'1R1C', '2R2C', '3R2C'}
         Preset to fit.
-    gains : {'constant', 'day_night', 'four_period'}
-        Model of the unlogged internal gains (periods of local time: :data:`thermorc.result.GAINS_SCHEDULES`).
+    gains : {'constant', 'day_night', 'four_period'} or dict
+        Model of the unlogged internal gains (periods of local time: :data:`thermorc.result.GAINS_SCHEDULES`),
+        or a schedule with its own hours (:func:`thermorc.result.gains_schedule`).
     method : {'output_error', 'prediction_error'}
         Estimator: least squares on the open-loop indoor temperature, or maximum likelihood of
         the stochastic model with a Kalman filter (started from the output-error fit).
@@ -1329,8 +1330,7 @@ def calibrate(
     model = str(model).upper()
     if model not in PRESETS:
         raise InputError(f"unknown model '{model}' (expected one of {', '.join(PRESETS)} or auto)")
-    if gains not in GAINS_SCHEDULES:
-        raise InputError(f"gains is {gains!r} (expected one of {', '.join(map(repr, GAINS_SCHEDULES))})")
+    gains = gains_schedule(gains)
     if method not in ("output_error", "prediction_error"):
         raise InputError(f"method is {method!r} (expected 'output_error' or 'prediction_error')")
     data = log if isinstance(log, CalibrationData) else calibration_data(log, step_s=step_s, path=path)
@@ -1574,7 +1574,7 @@ def calibrate(
         std_errors=std_errors,
         intervals=intervals,
         covariance=covariance if covariance["matrix"] is not None else None,
-        gains_schedule=dict(GAINS_SCHEDULES[gains]),
+        gains_schedule=gains_schedule(gains),
         step_s=data.step_s,
         solar_input=data.solar_column,
         ground=_ground_split(data.ground, derived["heat_loss_coefficient_w_per_k"]),
@@ -2019,7 +2019,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     ----------
     log : thermorc.align.AlignedData or pandas.DataFrame
         As for :func:`calibrate`.
-    gains : {'constant', 'day_night', 'four_period'}
+    gains : {'constant', 'day_night', 'four_period'} or dict
         Model of unlogged internal gains.
     holdout_fraction : float
         Tail of the data kept back to judge open-loop prediction.

@@ -95,7 +95,7 @@ _HOME_KEYS = {"name", "floor_area_m2", "log", "weather", "site", "construction",
               "description", "window_areas", "ground_c", "ground_share"}
 _LOG_KEYS = {"file", "column_map", "tz", "interval"}
 _SITE_KEYS = {"name", "latitude", "longitude", "altitude_m", "tz", "file"}
-_MODEL_KEYS = {"preset", "gains", "step_min", "result"}
+_MODEL_KEYS = {"preset", "gains", "gains_hours", "step_min", "result"}
 _PRESETS = ("1R1C", "2R2C", "3R2C", "auto")
 
 # Colours of our own: deep teal, ember, slate, sand, moss.
@@ -138,8 +138,9 @@ class HomeFile:
         ``calibrate --ground-c/--ground-share`` (the share may come from the construction).
     preset : str
         ``'1R1C'``, ``'2R2C'``, ``'3R2C'`` or ``'auto'``.
-    gains : str
-        ``'constant'``, ``'day_night'`` or ``'four_period'``.
+    gains : str or dict
+        ``'constant'``, ``'day_night'`` or ``'four_period'``, or the schedule with the
+        household's own hours (``[model] gains_hours``, :func:`thermorc.result.gains_schedule`).
     step_s : float or None
         Model step. [s]
     result : str or None
@@ -162,7 +163,7 @@ class HomeFile:
     ground_c: float | None = None
     ground_share: float | None = None
     preset: str = "auto"
-    gains: str = "constant"
+    gains: str | dict = "constant"
     step_s: float | None = None
     result: str | None = None
 
@@ -308,6 +309,16 @@ def parse_home(data, path):
     if gains not in ("constant", "day_night", "four_period"):
         raise InputError(f"{model.get('gains')!r} (expected 'constant', 'day-night' or 'four-period')", path=path,
                          column="model.gains")
+    if "gains_hours" in model:
+        from thermorc.result import gains_schedule
+
+        hours = model["gains_hours"]
+        if not isinstance(hours, list) or not all(isinstance(h, (int, float)) and not isinstance(h, bool) for h in hours):
+            raise InputError("expected a list of start hours, e.g. [9, 12, 20, 2]", path=path, column="model.gains_hours")
+        try:
+            gains = gains_schedule(gains, hours, where="gains_hours")
+        except InputError as exc:
+            raise InputError(exc.message, path=path, column="model.gains_hours") from None
     step_min = _number(model.get("step_min"), path, "model.step_min", 1.0, 60.0, "minutes")
     tz = _text(log.get("tz"), path, "log.tz") or site.get("tz")
     if tz is not None:

@@ -24,7 +24,8 @@ import pandas as pd
 from thermorc.errors import InputError
 from thermorc.network import GROUND, PRESETS, Network, preset_parameters, with_ground
 
-__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "GAINS_SCHEDULES", "gains_periods", "gains_period_labels", "RESULT_FORMAT"]
+__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "GAINS_SCHEDULES", "gains_schedule", "gains_periods", "gains_period_labels",
+           "RESULT_FORMAT"]
 
 #: Identifies the file layout; bump when keys change incompatibly.
 RESULT_FORMAT = "thermorc-calibration/1"
@@ -41,6 +42,69 @@ GAINS_SCHEDULES = {
 }
 
 
+def gains_schedule(gains, hours=None, where="gains hours"):
+    """
+    The schedule of a gains model, with the start hours of its periods changed if given.
+
+    Parameters
+    ----------
+    gains : str or dict
+        A key of :data:`GAINS_SCHEDULES`, or a schedule already (returned as a copy).
+    hours : sequence of float, optional
+        Start of each period [h, local time, 0-24] in the order of the day: the day's and the
+        night's for ``day_night`` (default 7, 23); morning, daytime, evening and night for
+        ``four_period`` (default 6, 9, 17, 23). Each period runs to the next start, the last
+        round midnight to the first (so the night may start after midnight: 9, 12, 20, 2).
+    where : str
+        What gave the hours, for messages.
+
+    Returns
+    -------
+    dict
+        A schedule as stored in RESULT.json ``gains_schedule``.
+
+    Raises
+    ------
+    InputError
+        An unknown model, hours for the constant model, the wrong number of hours, or hours
+        outside 0-24 or out of the order of the day.
+    """
+    if isinstance(gains, dict):
+        schedule = {k: (list(v) if isinstance(v, list) else v) for k, v in gains.items()}
+    elif gains in GAINS_SCHEDULES:
+        schedule = {k: (list(v) if isinstance(v, list) else v) for k, v in GAINS_SCHEDULES[gains].items()}
+    else:
+        raise InputError(f"gains is {gains!r} (expected one of {', '.join(map(repr, GAINS_SCHEDULES))})")
+    if hours is None:
+        return schedule
+    kind = schedule.get("kind", "constant")
+    needed = {"day_night": 2, "four_period": 4}.get(kind)
+    if needed is None:
+        raise InputError(f"{where} need gains by day and night or in four periods (one constant level has no hours)")
+    try:
+        hours = [float(h) for h in hours]
+    except (TypeError, ValueError):
+        raise InputError(f"{where} must be numbers of hours, e.g. 6,9,17,23") from None
+    if len(hours) != needed:
+        raise InputError(f"{where} must be {needed} start hours for {kind.replace('_', '-')} gains, got {len(hours)}")
+    if not _cyclic_hours(hours):
+        raise InputError(f"{where} must be hours 0-24 in the order of the day, each period after the one before "
+                         f"(the last may start after midnight), got {', '.join(f'{h:g}' for h in hours)}")
+    if kind == "day_night":
+        schedule["day_start_h"], schedule["night_start_h"] = hours
+    else:
+        schedule["starts_h"] = hours
+    return schedule
+
+
+def _cyclic_hours(hours):
+    """Whether start hours follow each other round the clock: each within 0-24, one lap in all."""
+    if not all(isinstance(h, (int, float)) and not isinstance(h, bool) and 0 <= h < 24 for h in hours):
+        return False
+    gaps = [(b - a) % 24.0 for a, b in zip(hours, list(hours[1:]) + list(hours[:1]))]
+    return all(g > 0 for g in gaps) and abs(sum(gaps) - 24.0) < 1e-9
+
+
 def gains_periods(schedule):
     """
     Periods of a gains schedule.
@@ -53,7 +117,7 @@ def gains_periods(schedule):
     Returns
     -------
     starts_h : list of float
-        Start of each period [h, local time], ascending; empty for one constant level.
+        Start of each period [h, local time] in the order of the day; empty for one constant level.
     parameters : list of str
         The gain parameter of each period (``internal_gains_w`` alone for a constant).
     """
@@ -92,8 +156,11 @@ def gains_period_labels(index, schedule):
     if not starts:
         return np.zeros(len(index), dtype=np.int64)
     hours = np.asarray(index.hour + index.minute / 60.0, dtype=float)
-    # Before the first start is the last period, run on past midnight.
-    return ((np.searchsorted(starts, hours, side="right") - 1) % len(starts)).astype(np.int64)
+    # The periods follow each other round the clock; the one whose start is latest in the
+    # day also holds the hours before the earliest start.
+    order = np.argsort(starts, kind="stable")
+    at = (np.searchsorted(np.asarray(starts, dtype=float)[order], hours, side="right") - 1) % len(starts)
+    return order[at].astype(np.int64)
 
 
 @dataclass
@@ -363,13 +430,17 @@ class CalibrationResult:
         if kind not in GAINS_SCHEDULES:
             raise InputError(f"gains_schedule kind is {kind!r} (expected one of {', '.join(GAINS_SCHEDULES)})",
                              path=path, column="gains_schedule")
+        if kind == "day_night":
+            hours = [result.gains_schedule.get(k, d) for k, d in (("day_start_h", 7), ("night_start_h", 23))]
+            if not _cyclic_hours(hours):
+                raise InputError("expected 'day_start_h' and 'night_start_h' as two different hours 0-24", path=path,
+                                 column="gains_schedule")
         if kind == "four_period":
             starts, names = result.gains_schedule.get("starts_h"), result.gains_schedule.get("names")
             ok = (isinstance(starts, list) and isinstance(names, list) and len(starts) == len(names) >= 2
-                  and all(isinstance(h, (int, float)) and not isinstance(h, bool) and 0 <= h < 24 for h in starts)
-                  and all(a < b for a, b in zip(starts, starts[1:])) and all(isinstance(n, str) for n in names))
+                  and _cyclic_hours(starts) and all(isinstance(n, str) for n in names))
             if not ok:
-                raise InputError("expected 'starts_h' (ascending hours 0-24) and as many 'names'",
+                raise InputError("expected 'starts_h' (hours 0-24 in the order of the day) and as many 'names'",
                                  path=path, column="gains_schedule")
         if kind != "constant":
             for key in gains_periods(result.gains_schedule)[1]:

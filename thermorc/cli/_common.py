@@ -22,6 +22,41 @@ class IntervalLabel(str, enum.Enum):
     start = "start"
     end = "end"
 
+GAINS_HOURS_HELP = ("Start hours of the gains periods in the order of the day, e.g. 9,12,20,2 for four periods "
+                    "(morning, daytime, evening, night) or 7,23 for day and night; default 6,9,17,23 and 7,23.")
+
+
+def gains_option(gains, hours_text, option="--gains-hours"):
+    """
+    The gains model of a command: its name, or its schedule with the household's hours.
+
+    Parameters
+    ----------
+    gains : str
+        ``constant``, ``day-night`` or ``four-period`` (as typed).
+    hours_text : str or None
+        Comma-separated start hours [h, local time].
+    option : str
+        Name of the option, for messages.
+
+    Returns
+    -------
+    str or dict
+        The name (``day_night`` spelling) when no hours are given; else the schedule
+        (:func:`thermorc.result.gains_schedule`).
+    """
+    from thermorc.result import gains_schedule
+
+    name = gains.replace("-", "_")
+    if hours_text is None:
+        return name
+    try:
+        hours = [float(part) for part in hours_text.split(",")]
+    except ValueError:
+        raise InputError(f"{option} {hours_text!r}: expected hours separated by commas, e.g. 9,12,20,2") from None
+    return gains_schedule(name, hours, where=option)
+
+
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 out_console = Console(highlight=False, soft_wrap=True)
 

@@ -10,7 +10,7 @@ from typing import Annotated, Optional
 import typer
 
 from thermorc.cli._app import app
-from thermorc.cli._common import IntervalLabel, guarded, out_console
+from thermorc.cli._common import GAINS_HOURS_HELP, IntervalLabel, gains_option, guarded, out_console
 from thermorc.write import _clean_for_json, write_json
 
 EPILOG = "Example: thermorc calibrate site_log.csv --weather site.epw --model auto --out RESULT.json"
@@ -53,6 +53,7 @@ def calibrate(
     ground_share: Annotated[Optional[float], typer.Option("--ground-share", help="Share of the heat loss that goes to the ground (0..0.9); default: from the construction's ground_floor elements.", rich_help_panel="Inputs")] = None,
     model: Annotated[ModelChoice, typer.Option("--model", help="RC model, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
     gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant; a day (07-23 h) and a night value; or four periods (06-09, 09-17, 17-23, 23-06 h).", rich_help_panel="Model")] = GainsChoice.constant,
+    gains_hours: Annotated[Optional[str], typer.Option("--gains-hours", help=GAINS_HOURS_HELP, rich_help_panel="Model")] = None,
     estimator: Annotated[EstimatorChoice, typer.Option("--estimator", help="Output error (least squares on the open-loop indoor temperature) or prediction error (Kalman-filter likelihood).", rich_help_panel="Model")] = EstimatorChoice.output_error,
     test_days: Annotated[Optional[float], typer.Option("--test-days", help="Keep the log's last days back and report how the model predicts them (validation in RESULT.json).", rich_help_panel="Model")] = None,
     step_min: Annotated[Optional[float], typer.Option("--step-min", min=1.0, max=180.0, help="Model step \\[min]; default: the log's own step.", rich_help_panel="Model")] = None,
@@ -64,7 +65,7 @@ def calibrate(
 
     result = calibrate_files(
         log, column_map=column_map, tz=tz, interval=interval.value if interval else None, weather=weather,
-        site=site, construction=construction, model=model.value, gains=gains.value.replace("-", "_"),
+        site=site, construction=construction, model=model.value, gains=gains_option(gains.value, gains_hours),
         step_s=step_min * 60.0 if step_min else None, progress=not quiet and not as_json, ground_c=ground_c,
         ground_share=ground_share, method=estimator.value.replace("-", "_"), test_days=test_days,
         window_areas=window_areas,

@@ -9,7 +9,7 @@ from typing import Annotated, Optional
 import typer
 
 from thermorc.cli._app import app
-from thermorc.cli._common import err_console, fail, guarded, out_console
+from thermorc.cli._common import GAINS_HOURS_HELP, err_console, fail, gains_option, guarded, out_console
 from thermorc.cli.calibrate import GainsChoice, ModelChoice
 
 EPILOG = "Example: thermorc fleet homes.toml --out RESULTS.parquet --workers 8 --model auto"
@@ -60,6 +60,7 @@ def fleet(
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running Dask distributed scheduler, e.g. tcp://10.0.0.5:8786.", rich_help_panel="Inputs")] = None,
     model: Annotated[ModelChoice, typer.Option("--model", help="RC model for every home, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
     gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant; a day (07-23 h) and a night value; or four periods (06-09, 09-17, 17-23, 23-06 h).", rich_help_panel="Model")] = GainsChoice.constant,
+    gains_hours: Annotated[Optional[str], typer.Option("--gains-hours", help=GAINS_HOURS_HELP, rich_help_panel="Model")] = None,
     test_days: Annotated[Optional[float], typer.Option("--test-days", help="Keep each log's last days back and report how each home's model predicts them (test_* columns).", rich_help_panel="Model")] = None,
     batch: Annotated[Optional[int], typer.Option("--batch", min=1, help="Homes sent out at a time (an interruption loses at most one batch); default: 8 per worker, at least 32.", rich_help_panel="Inputs")] = None,
     retry_errors: Annotated[bool, typer.Option("--retry-errors", help="On resume, calculate again the homes that ended in error.", rich_help_panel="Inputs")] = False,
@@ -96,7 +97,7 @@ def fleet(
         with progress:
             run = run_fleet(
                 manifest, out, workers=workers, scheduler=scheduler, model=model.value,
-                gains=gains.value.replace("-", "_"), test_days=test_days, batch_size=batch, retry_errors=retry_errors,
+                gains=gains_option(gains.value, gains_hours), test_days=test_days, batch_size=batch, retry_errors=retry_errors,
                 on_start=on_start, on_row=on_row,
             )
     except KeyboardInterrupt:
