@@ -332,3 +332,11 @@ def test_report_shows_the_held_out_validation_and_the_heating_share():
     assert "Validation on days the fit did not see" in page
     assert f"RMSE {v['rmse_k']:.2f} K" in page and f"bias {v['bias_k']:.2f} K" in page
     assert f"supplied {100 * result.extras['heating_share']:.0f} % of the heat" in page
+
+
+@pytest.mark.parametrize("ground, key", [({"ground_c": 80, "ground_share": 0.1}, "ground_c"),
+                                        ({"ground_c": 8, "ground_share": 0.95}, "ground_share")])
+def test_ground_keys_of_a_home_file_are_named_as_keys_not_options(ground, key):
+    with pytest.raises(InputError) as info:
+        parse_home({"log": {"file": "log.csv"}, **ground}, path=str(DEMO / "home.toml"))
+    assert f"({key})" in info.value.message and "--ground" not in info.value.message

@@ -458,11 +458,11 @@ def _ground_path(ground_c, ground_share):
     return {"temperature_c": check_ground_c(ground_c), "share": check_ground_share(ground_share)}
 
 
-def check_ground_c(value):
-    """A plausible ground temperature [°C], or :class:`InputError`."""
+def check_ground_c(value, name="--ground-c"):
+    """A plausible ground temperature [°C], or :class:`InputError` naming the option or key ``name``."""
     t = float(value)
     if not (math.isfinite(t) and -30.0 <= t <= 40.0):
-        raise InputError(f"ground temperature (--ground-c) {value!r} °C is not plausible (expected -30..40 °C)")
+        raise InputError(f"ground temperature ({name}) {value!r} °C is not plausible (expected -30..40 °C)")
     return t
 
 
@@ -493,17 +493,17 @@ def check_ground_keys(ground, has_construction, where):
     for key, check in (("ground_c", check_ground_c), ("ground_share", check_ground_share)):
         if key in ground:
             try:
-                out[key] = check(ground[key])
+                out[key] = check(ground[key], key)
             except InputError as exc:
                 raise InputError(exc.message, **where(key)) from None
     return out.get("ground_c"), out.get("ground_share")
 
 
-def check_ground_share(value):
-    """A share of the heat loss to the ground, 0..:data:`MAX_GROUND_SHARE`, or :class:`InputError`."""
+def check_ground_share(value, name="--ground-share"):
+    """A share of the heat loss to the ground, 0..:data:`MAX_GROUND_SHARE`, or :class:`InputError` naming ``name``."""
     f = float(value)
     if not (math.isfinite(f) and 0.0 <= f <= MAX_GROUND_SHARE):
-        raise InputError(f"ground share (--ground-share) {value!r} is outside 0..{MAX_GROUND_SHARE:g}")
+        raise InputError(f"ground share ({name}) {value!r} is outside 0..{MAX_GROUND_SHARE:g}")
     return f
 
 
