@@ -645,6 +645,13 @@ def test_held_out_days_fill_the_test_columns(fleet_dir, local_run, tmp_path):
                         ("test_nmbe_pct", "nmbe_pct"), ("test_heating_share", "heating_share")):
         assert rows.loc["h1", column] == pytest.approx(val[key], rel=1e-9), column
     assert rows.loc["h1", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
+    # The held-out days' cautions have a column of their own (none for these days).
+    assert val["warnings"] == [] and pd.isna(rows.loc["h1", "test_warnings"])
+    body = single.to_dict()
+    body["validation"]["warnings"] = ["the held-out days lean on the sun", "a second caution"]
+    row = flatten_result(body, homes[0], "2R2C")
+    assert row["test_warnings"] == "the held-out days lean on the sun | a second caution"
+    assert "sun" not in (row["warnings"] or "")
     summary = run.summary.set_index("quantity")
     outside = ((rows["test_cv_rmse_pct"] > 30) | (rows["test_nmbe_pct"].abs() > 10)).sum()
     assert summary.loc["homes_test_outside_hourly_limits", "count"] == outside

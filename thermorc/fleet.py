@@ -100,6 +100,7 @@ RESULT_COLUMNS = (
     ("test_cv_rmse_pct", "float64"),
     ("test_nmbe_pct", "float64"),
     ("test_heating_share", "float64"),
+    ("test_warnings", "string"),
     ("n_samples", "int64"),
     ("data_verdict", "string"),
     ("n_warnings", "int64"),
@@ -593,6 +594,7 @@ def flatten_result(result, home, model="auto"):
         test_cv_rmse_pct=_finite(test.get("cv_rmse_pct")),
         test_nmbe_pct=_finite(test.get("nmbe_pct")),
         test_heating_share=_finite(test.get("heating_share")),
+        test_warnings=WARNING_SEPARATOR.join(_one_line(w) for w in test.get("warnings") or []) or None,
         n_samples=int(fit["n_samples"]) if _finite(fit.get("n_samples")) is not None else None,
         data_verdict=(body.get("data_quality") or {}).get("verdict"),
         n_warnings=len(warns),
@@ -648,7 +650,9 @@ def calibrate_home(home, model="auto", gains="constant", test_days=None):
             )
         row = flatten_result(result, home, model)
         data_warns = [_one_line(w.message) for w in caught if issubclass(w.category, ThermorcWarning)]
-        data_warns = [w for w in dict.fromkeys(data_warns) if w not in (row["warnings"] or "")]
+        # The fit's cautions and the held-out days' have columns of their own.
+        data_warns = [w for w in dict.fromkeys(data_warns)
+                      if w not in (row["warnings"] or "") and w not in (row["test_warnings"] or "")]
         row["data_warnings"] = WARNING_SEPARATOR.join(data_warns) or None
     except InputError as exc:
         row.update(status="error", error=_one_line(exc))
