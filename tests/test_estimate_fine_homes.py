@@ -163,30 +163,8 @@ def test_heating_stamped_at_the_end_of_its_interval_is_pointed_out(fitted, name)
 
 
 def _greensboro_weather(start, days_before, days_after):
-    """pvlib's Greensboro TMY3 (real open data) on a 5-minute grid, as fine-home weather.
-
-    Temperature linear between the hourly readings, irradiance held over each hour (interval
-    means); the typical year is put in 2022 and 2023 so that a log can run over New Year.
-    """
-    import os
-
-    import pandas as pd
-    import pvlib
-
-    from thermorc.read import read_weather
-
-    path = os.path.join(os.path.dirname(pvlib.__file__), "data", "723170TYA.CSV")
-    parts = [read_weather(path, coerce_year=year) for year in (2022, 2023)]
-    meta = parts[0][1]
-    hourly = pd.concat([p[0] for p in parts]).sort_index()
-    hourly = hourly[~hourly.index.duplicated()]
-    t0 = pd.Timestamp(start, tz=hourly.index.tz)
-    grid = pd.date_range(t0 - pd.Timedelta(days=days_before), t0 + pd.Timedelta(days=days_after), freq="5min")
-    weather = pd.DataFrame({"outdoor_c": hourly["outdoor_c"].reindex(grid.union(hourly.index)).interpolate().reindex(grid)},
-                           index=grid)
-    for column in ("ghi_w_m2", "dni_w_m2", "dhi_w_m2"):
-        weather[column] = hourly[column].reindex(grid, method="ffill")
-    return weather, (meta["latitude"], meta["longitude"], meta.get("altitude_m") or 0.0), str(hourly.index.tz)
+    """pvlib's Greensboro TMY3 (real open data) on a 5-minute grid, as fine-home weather."""
+    return synthetic.tmy3_weather("723170TYA.CSV", start, days_before, days_after)
 
 
 @pytest.mark.slow

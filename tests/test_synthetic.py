@@ -31,6 +31,7 @@ from thermorc.synthetic import (
     relevant_time_constant,
     simulate_home,
     synthetic_weather,
+    tmy3_weather,
 )
 
 # ISO 6946 surface resistances [m2 K/W]: R_si 0.10 up, 0.13 horizontal, 0.17 down, R_se 0.04
@@ -286,3 +287,22 @@ def test_demo_files_are_what_their_script_writes(tmp_path):
     ua = construction_ua(read_construction(here / "construction.toml"))["ua_w_per_k"]
     # ISO 6946 with R_se under the floor instead of soil: a little above the fine model.
     assert shipped["heat_loss_coefficient_w_per_k"] < ua < 1.15 * shipped["heat_loss_coefficient_w_per_k"]
+
+
+def test_tmy3_weather_keeps_the_files_hourly_values():
+    # pvlib's Greensboro TMY3 (real open data) read by thermorc.read: on the 5-minute grid the
+    # temperature passes through each hourly reading and the irradiance holds each hour's mean.
+    import os
+
+    from thermorc.read import read_weather
+
+    weather, site, tz = tmy3_weather("723170TYA.CSV", "2023-01-10", 2, 2)
+    hourly, meta = read_weather(os.path.join(os.path.dirname(pvlib.__file__), "data", "723170TYA.CSV"),
+                                coerce_year=2023)
+    assert site[:2] == (meta["latitude"], meta["longitude"]) and tz == str(hourly.index.tz)
+    assert (weather.index[1] - weather.index[0]) == pd.Timedelta("5min") and len(weather) == 4 * 288 + 1
+    on_hours = weather.index[weather.index.minute == 0]
+    np.testing.assert_allclose(weather.loc[on_hours, "outdoor_c"], hourly["outdoor_c"].reindex(on_hours))
+    half = on_hours + pd.Timedelta("30min")
+    half = half[half <= weather.index[-1]]
+    np.testing.assert_allclose(weather.loc[half, "ghi_w_m2"], hourly["ghi_w_m2"].reindex(on_hours[: len(half)]))

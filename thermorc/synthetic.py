@@ -90,6 +90,7 @@ __all__ = [
     "home_truth",
     "facade_irradiance",
     "synthetic_weather",
+    "tmy3_weather",
     "simulate_home",
     "CLIMATES",
 ]
@@ -1034,6 +1035,54 @@ def synthetic_weather(start, days, step_s=3600.0, latitude=45.0, longitude=-90.0
         },
         index=index,
     )
+
+
+def tmy3_weather(name, start, days_before, days_after, step="5min"):
+    """
+    One of the TMY3 files pvlib ships (real open data) on a fine grid, as weather for a fine home.
+
+    Temperature is linear between the hourly readings and irradiance is held over each hour
+    (TMY3 values are means over the hour); the typical year is put in 2022 and in 2023, so that
+    a log can run over New Year.
+
+    Parameters
+    ----------
+    name : str
+        File name in pvlib's data folder, e.g. ``"723170TYA.CSV"`` (Greensboro NC) or
+        ``"703165TY.csv"`` (Sand Point AK).
+    start : str
+        A local date of 2022 or 2023: the grid runs from ``days_before`` before it to
+        ``days_after`` after it.
+    days_before, days_after : float
+        [d]
+    step : str
+        Grid step (pandas frequency).
+
+    Returns
+    -------
+    weather : pandas.DataFrame
+        ``outdoor_c`` [°C], ``ghi_w_m2``, ``dni_w_m2``, ``dhi_w_m2`` [W m⁻²] on the grid.
+    site : tuple
+        (latitude [deg], longitude [deg], altitude [m]) for :func:`simulate_home`.
+    tz : str
+        The file's time zone.
+    """
+    import os
+
+    from thermorc.read import read_weather
+
+    path = os.path.join(os.path.dirname(pvlib.__file__), "data", name)
+    parts = [read_weather(path, coerce_year=year) for year in (2022, 2023)]
+    meta = parts[0][1]
+    hourly = pd.concat([p[0] for p in parts]).sort_index()
+    hourly = hourly[~hourly.index.duplicated()]
+    t0 = pd.Timestamp(start, tz=hourly.index.tz)
+    grid = pd.date_range(t0 - pd.Timedelta(days=days_before), t0 + pd.Timedelta(days=days_after), freq=step)
+    weather = pd.DataFrame(
+        {"outdoor_c": hourly["outdoor_c"].reindex(grid.union(hourly.index)).interpolate().reindex(grid)}, index=grid)
+    for column in ("ghi_w_m2", "dni_w_m2", "dhi_w_m2"):
+        weather[column] = hourly[column].reindex(grid, method="ffill")
+    return weather, (meta["latitude"], meta["longitude"], meta.get("altitude_m") or 0.0), str(hourly.index.tz)
 
 
 def facade_irradiance(weather, latitude, longitude, altitude_m=0.0, albedo=0.2):

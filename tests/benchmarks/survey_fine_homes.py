@@ -42,27 +42,6 @@ INVENTED_SITE = (45.0, -90.0, 300.0)
 STEPS_PER_DAY = 288
 
 
-def real_weather(name, start, days_before=45, days_after=43):
-    """A pvlib TMY3 file on a 5-minute grid: temperature linear, irradiance held each hour."""
-    import pvlib
-
-    from thermorc.read import read_weather
-
-    path = os.path.join(os.path.dirname(pvlib.__file__), "data", name)
-    parts = [read_weather(path, coerce_year=year) for year in (2022, 2023)]
-    meta = parts[0][1]
-    hourly = pd.concat([p[0] for p in parts]).sort_index()
-    hourly = hourly[~hourly.index.duplicated()]
-    t0 = pd.Timestamp(start, tz=hourly.index.tz)
-    grid = pd.date_range(t0 - pd.Timedelta(days=days_before), t0 + pd.Timedelta(days=days_after), freq="5min")
-    weather = pd.DataFrame(
-        {"outdoor_c": hourly["outdoor_c"].reindex(grid.union(hourly.index)).interpolate().reindex(grid)}, index=grid)
-    for column in ("ghi_w_m2", "dni_w_m2", "dhi_w_m2"):
-        weather[column] = hourly[column].reindex(grid, method="ffill")
-    site = (meta["latitude"], meta["longitude"], meta.get("altitude_m") or 0.0)
-    return weather, site, str(hourly.index.tz)
-
-
 def cases(kind, seeds=None):
     if kind == "real":
         return [(home, name, start, seed) for seed in (seeds or (1, 2)) for name, starts in REAL.items()
@@ -77,7 +56,7 @@ def run_case(home, weather_name, start, seed, variants, gains, fit=None):
         weather, site, tz = None, INVENTED_SITE, "America/Chicago"
         log, truth = synthetic.simulate_home(spec, days=42, step_s=300, seed=seed, warmup_days=45, start=start)
     else:
-        weather, site, tz = real_weather(weather_name, start)
+        weather, site, tz = synthetic.tmy3_weather(weather_name, start, 45, 43)
         log, truth = synthetic.simulate_home(spec, weather=weather, days=42, step_s=300, seed=seed, warmup_days=45,
                                              site=site, tz=tz)
     where = {"latitude": site[0], "longitude": site[1], "altitude_m": site[2]}
