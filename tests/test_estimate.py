@@ -95,6 +95,13 @@ def test_free_float_decay_gives_rc():
     log = pd.DataFrame({"indoor_c": sim.temperatures_c["indoor"], "heating_w": heat, "outdoor_c": 0.0}, index=index)
     tau = estimate.free_float_time_constant_s(estimate.calibration_data(log))
     assert tau == pytest.approx(0.005 * 1.2e7, rel=1e-6)
+    # The same nights read every hour still give the decay; read every 3 hours, a heating-off
+    # run of one reading is not fitted (a one-point fit used to return a number).
+    hourly = log.resample("1h").first()
+    assert estimate.free_float_time_constant_s(estimate.calibration_data(hourly)) == pytest.approx(0.005 * 1.2e7, rel=1e-6)
+    coarse = log.resample("3h").first()
+    coarse["heating_w"] = np.where(np.arange(len(coarse)) % 8 == 0, 0.0, 4000.0)
+    assert estimate.free_float_time_constant_s(estimate.calibration_data(coarse)) is None
 
 
 def test_calibration_recovers_parameters_of_its_own_model():

@@ -587,7 +587,8 @@ def free_float_time_constant_s(data: CalibrationData, min_hours=2.0):
     constant (lumped-capacitance solution; F. P. Incropera et al., Fundamentals of Heat and
     Mass Transfer, ch. 5). Solar gains slow the decay, so runs in daylight are skipped.
     """
-    need = int(min_hours * 3600 / data.step_s)
+    # A slope needs three readings at least, however coarse the step.
+    need = max(3, math.ceil(min_hours * 3600 / data.step_s - 1e-9))
     off = (data.u[:, 1] <= 1e-6) & (data.u[:, 2] < 5.0)
     found = []
     for s in data.segments:
@@ -601,7 +602,7 @@ def free_float_time_constant_s(data: CalibrationData, min_hours=2.0):
                     rows = np.arange(s.start + start, s.start + i)
                     diff = data.y[rows] - data.u[rows, 0]
                     ok = np.isfinite(diff) & (diff > 1.0)
-                    if ok.sum() >= need // 2:
+                    if ok.sum() >= max(3, need // 2):
                         t = rows[ok] * data.step_s
                         slope = np.polyfit(t, np.log(diff[ok]), 1)[0]
                         if slope < 0:
