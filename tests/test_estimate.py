@@ -484,3 +484,5 @@ def test_four_period_gains_take_the_households_own_hours():
         gains_schedule("four_period", [9, 20, 12, 2])
     with pytest.raises(InputError, match="one constant level has no hours"):
         gains_schedule("constant", [7])
+    with pytest.raises(InputError, match="expected one of"):
+        gains_schedule({"kind": "weekly"})

@@ -69,15 +69,13 @@ def gains_schedule(gains, hours=None, where="gains hours"):
         An unknown model, hours for the constant model, the wrong number of hours, or hours
         outside 0-24 or out of the order of the day.
     """
-    if isinstance(gains, dict):
-        schedule = {k: (list(v) if isinstance(v, list) else v) for k, v in gains.items()}
-    elif gains in GAINS_SCHEDULES:
-        schedule = {k: (list(v) if isinstance(v, list) else v) for k, v in GAINS_SCHEDULES[gains].items()}
-    else:
+    source = gains if isinstance(gains, dict) else GAINS_SCHEDULES.get(gains)
+    kind = (source or {}).get("kind", "constant")
+    if source is None or kind not in GAINS_SCHEDULES:
         raise InputError(f"gains is {gains!r} (expected one of {', '.join(map(repr, GAINS_SCHEDULES))})")
+    schedule = {k: (list(v) if isinstance(v, list) else v) for k, v in source.items()}
     if hours is None:
         return schedule
-    kind = schedule.get("kind", "constant")
     needed = {"day_night": 2, "four_period": 4}.get(kind)
     if needed is None:
         raise InputError(f"{where} need gains by day and night or in four periods (one constant level has no hours)")

@@ -22,6 +22,7 @@ class IntervalLabel(str, enum.Enum):
     start = "start"
     end = "end"
 
+
 GAINS_HOURS_HELP = ("Start hours of the gains periods in the order of the day, e.g. 9,12,20,2 for four periods "
                     "(morning, daytime, evening, night) or 7,23 for day and night; default 6,9,17,23 and 7,23.")
 
