@@ -104,6 +104,25 @@ def test_free_float_decay_gives_rc():
     assert estimate.free_float_time_constant_s(estimate.calibration_data(coarse)) is None
 
 
+def test_predict_on_a_finer_log_than_the_model_step_says_so():
+    # Calibrated at 1 h, run on the 15-minute log it came from: the model knows nothing of
+    # what happens within its hour, so predict warns (thermorc simulate aligns to the model
+    # step itself); on the model's own step it does not.
+    from thermorc.errors import DataQualityWarning
+
+    log, _, _ = stochastic_log(seed=12, days=14)
+    coarse = log.resample("1h").first()
+    coarse["heating_w"] = log["heating_w"].resample("1h").mean()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(coarse, model="2R2C")
+    with pytest.warns(DataQualityWarning, match=r"log's step \(15 min\) is finer than the model's \(60 min\)"):
+        estimate.predict(res, log)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", DataQualityWarning)
+        estimate.predict(res, coarse)
+
+
 def test_calibration_recovers_parameters_of_its_own_model():
     # Data made from a known 2R2C (plus noise): the truth must lie inside conf intervals and
     # the estimates close to it (simulate-and-fit check, as statsmodels tests its estimators).

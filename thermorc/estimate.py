@@ -1995,6 +1995,13 @@ def predict(result: CalibrationResult, log, x0=None):
         start_note = "continued from the end of the calibration data"
     lag = float(result.parameters.get(SENSOR_PARAMETER, 0.0))
     step = float(np.median(np.diff(frame.index.as_unit("ns").asi8)) / 1e9) if len(frame) > 1 else result.step_s
+    if step < 0.5 * result.step_s:
+        warnings.warn(
+            f"the log's step ({step / 60:g} min) is finer than the model's ({result.step_s / 60:g} min): the model was "
+            "not fitted to what happens within its step, so its indoor temperature may swing between its steps; put "
+            "the log on the model's step first (thermorc.align.align, as thermorc simulate does)",
+            DataQualityWarning, stacklevel=2,
+        )
     if x0 is None:
         x0, start_note = _warmup_state(net, inputs, frame, step, lag)
     sim = simulate(net, inputs, x0=x0, interval_means=False)
