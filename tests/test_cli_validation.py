@@ -93,11 +93,13 @@ def test_the_households_own_gains_hours_from_the_command_line(log_csv, tmp_path)
     r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--gains", "four-period",
                             "--gains-hours", "9,12,20,2", "--out", str(out)])
     assert r.exit_code == 0, r.output
+    assert "(20-02 h)" in r.stdout and "(02-09 h)" in r.stdout  # the summary says each period's hours
     body = json.loads(out.read_text(encoding="utf-8"))
     assert body["gains_schedule"]["starts_h"] == [9, 12, 20, 2]
     r = runner.invoke(app, ["calibrate", str(log_csv), "--model", "2R2C", "--gains", "day-night",
                             "--gains-hours", "8,22.5", "--out", str(out)])
     assert r.exit_code == 0, r.output
+    assert "(08-22:30 h)" in r.stdout and "(22:30-08 h)" in r.stdout
     body = json.loads(out.read_text(encoding="utf-8"))
     assert (body["gains_schedule"]["day_start_h"], body["gains_schedule"]["night_start_h"]) == (8, 22.5)
     sim = tmp_path / "SIM.csv"

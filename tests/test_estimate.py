@@ -496,6 +496,11 @@ def test_four_period_gains_take_the_households_own_hours():
     assert res.fit["rmse_k"] < 0.5 * usual.fit["rmse_k"]
     again = CalibrationResult.from_dict(json.loads(json.dumps(res.to_dict())))
     assert again.gains_schedule["starts_h"] == [9.0, 12.0, 20.0, 2.0]
+    assert again.gains_period_hours() == {"internal_gains_morning_w": "09-12 h", "internal_gains_daytime_w": "12-20 h",
+                                          "internal_gains_evening_w": "20-02 h", "internal_gains_night_w": "02-09 h"}
+    from thermorc.report import _parameter_table
+
+    assert any(label.endswith("(20-02 h)") for label in _parameter_table(again).index)
     np.testing.assert_allclose(again.internal_gains_w(index).to_numpy(), [FOUR_LEVELS_W[k] for k in label], atol=15.0)
     with pytest.raises(InputError, match="4 start hours"):
         gains_schedule("four_period", [9, 12, 20])

@@ -692,8 +692,11 @@ def _parameter_table(result):
         **result.parameters,
     }
     rows = []
+    hours = result.gains_period_hours()
     for name in names:
         label, unit, scale = _unit_label(name)
+        if name in hours:
+            label = f"{label} ({hours[name]})"
         low, high = (result.intervals.get(name) or [math.nan, math.nan])[:2]
         low = math.nan if low is None else float(low)
         high = math.nan if high is None else float(high)

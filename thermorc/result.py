@@ -103,6 +103,12 @@ def _cyclic_hours(hours):
     return all(g > 0 for g in gaps) and abs(sum(gaps) - 24.0) < 1e-9
 
 
+def _clock(hour):
+    """An hour of the day as ``06`` or ``22:30``."""
+    minutes = int(round(hour * 60)) % 1440
+    return f"{minutes // 60:02d}" + (f":{minutes % 60:02d}" if minutes % 60 else "")
+
+
 def gains_periods(schedule):
     """
     Periods of a gains schedule.
@@ -485,6 +491,19 @@ class CalibrationResult:
             raise InputError(f"invalid JSON: {exc.msg}", path=path, row=exc.lineno) from None
         return cls.from_dict(data, path=str(path))
 
+    def gains_period_hours(self):
+        """
+        The local hours of each gains period, for labels.
+
+        Returns
+        -------
+        dict
+            Gain parameter -> ``"20-02 h"``; empty for one constant level.
+        """
+        starts, keys = gains_periods(self.gains_schedule)
+        return {key: f"{_clock(starts[i])}-{_clock(starts[(i + 1) % len(starts)])} h"
+                for i, key in enumerate(keys) if starts}
+
     def summary(self):
         """A short plain-text summary for people (units in the labels)."""
 
@@ -511,10 +530,11 @@ class CalibrationResult:
         aperture = self.parameters.get("solar_aperture_m2")
         if aperture:
             lines.append(f"solar aperture          {aperture:.2f} m² on {self.solar_input}" + interval("solar_aperture_m2", fmt="{:.2f}"))
+        hours = self.gains_period_hours()
         for key in gains_periods(self.gains_schedule)[1]:
             if key in self.parameters:
                 label = "unlogged gains" + ("" if key == "internal_gains_w" else ", " + key[len("internal_gains_"):-2])
-                lines.append(f"{label:<24}{self.parameters[key]:.0f} W")
+                lines.append(f"{label:<24}{self.parameters[key]:.0f} W" + (f" ({hours[key]})" if key in hours else ""))
         lag = self.parameters.get("sensor_time_constant_s", 0.0)
         if lag > 0:
             lines.append(f"{'sensor lag':<24}{lag / 60:.1f} min (first-order, fitted to the samples)")
