@@ -7,6 +7,7 @@ UA = 1 / (R_ie + R_eo) (the steady state of resistances in series; any heat-tran
 textbook, e.g. Incropera et al., Fundamentals of Heat and Mass Transfer, 7th ed., sec. 3.1).
 """
 
+import dataclasses
 import hashlib
 import json
 import math
@@ -698,3 +699,39 @@ def test_gains_hours_reach_every_home_and_its_fingerprint(fleet_dir, tmp_path):
     assert bad.exit_code == 2
     assert bad.stderr.strip().startswith("thermorc: error: --gains-hours need gains by day and night")
     assert not (tmp_path / "B.parquet").exists()
+
+
+def test_a_households_own_gains_hours_in_the_manifest(fleet_dir, tmp_path):
+    # A manifest column gives one household its own hours (a TOML list or a text); the run's
+    # --gains must suit their count, else that home alone is an error row; hours that could
+    # never be periods are refused when the manifest is read, naming its row and column.
+    from thermorc.result import gains_schedule
+
+    root, _ = fleet_dir
+    manifest = tmp_path / "homes.csv"
+    manifest.write_text(f"id,log,site,gains_hours\nlate,{root / 'logs' / 'h1.csv'},\"{SITE}\",9;12;20;2\n"
+                        f"usual,{root / 'logs' / 'h2.csv'},\"{SITE}\",\n")
+    homes = read_manifest(manifest)
+    assert homes[0].gains_hours == (9.0, 12.0, 20.0, 2.0) and homes[1].gains_hours is None
+    assert input_fingerprint(homes[0], gains="four_period") != input_fingerprint(
+        dataclasses.replace(homes[0], gains_hours=None), gains="four_period")
+    out = tmp_path / "R.parquet"
+    run_fleet(homes, out, workers=1, model="2R2C", gains="four_period")
+    rows = pd.read_parquet(out).set_index("home_id")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        single = calibrate_files(root / "logs" / "h1.csv", site=SITE, model="2R2C",
+                                 gains=gains_schedule("four_period", [9, 12, 20, 2]))
+    assert rows.loc["late", "ua_w_per_k"] == pytest.approx(single.heat_loss_coefficient_w_per_k, rel=1e-9)
+    run_fleet(homes, tmp_path / "D.parquet", workers=1, model="2R2C", gains="day_night")
+    rows = pd.read_parquet(tmp_path / "D.parquet").set_index("home_id")
+    assert rows.loc["late", "status"] == "error" and "column 'gains_hours'" in rows.loc["late", "error"]
+    assert "day-night" in rows.loc["late", "error"] and rows.loc["usual", "status"] == "ok"
+    toml = tmp_path / "homes.toml"
+    toml.write_text(f'[[home]]\nid = "a"\nlog = "{root / "logs" / "h1.csv"}"\ngains_hours = [7, 23]\n')
+    assert read_manifest(toml)[0].gains_hours == (7.0, 23.0)
+    for bad in ("9;20;12;2", "9;12;20", "six;9;17;23"):
+        manifest.write_text(f"id,log,gains_hours\nh1,{root / 'logs' / 'h1.csv'},{bad}\n")
+        with pytest.raises(InputError) as info:
+            read_manifest(manifest)
+        assert info.value.column == "gains_hours" and info.value.row == 2

@@ -65,7 +65,7 @@ __all__ = [
 #: Manifest columns (CSV header names, TOML keys). ``id`` and ``log`` are required.
 MANIFEST_COLUMNS = (
     "id", "log", "partition", "column_map", "site", "weather", "tz", "interval", "floor_area_m2",
-    "construction", "ground_c", "ground_share", "window_areas",
+    "construction", "ground_c", "ground_share", "window_areas", "gains_hours",
 )
 _PATH_COLUMNS = ("log", "column_map", "weather", "construction")
 _MODELS = ("1R1C", "2R2C", "3R2C", "auto")
@@ -171,6 +171,9 @@ class HomeSpec:
     window_areas : str or None
         Window area per façade, ``"S=8,E=3,W=3,N=4"`` [m²] (``;`` may join the pairs too):
         weights the façades of the solar input (:func:`thermorc.chain.parse_window_areas`).
+    gains_hours : tuple of float or None
+        This household's start hours of the gains periods [h, local time], in place of the
+        run's (:func:`thermorc.result.gains_schedule`).
     manifest : str
         The manifest file, for messages.
     row : int or None
@@ -190,6 +193,7 @@ class HomeSpec:
     ground_c: float | None = None
     ground_share: float | None = None
     window_areas: str | None = None
+    gains_hours: tuple | None = None
     manifest: str | None = None
     row: int | None = None
 
@@ -403,8 +407,40 @@ def _home_from_record(values, row, key_rows, path, base):
         home_id=home_id, log=paths["log"], partition=partition, column_map=paths["column_map"], site=site,
         weather=paths["weather"], tz=tz, interval=interval, floor_area_m2=area,
         construction=paths["construction"], ground_c=ground.get("ground_c"), ground_share=ground.get("ground_share"),
-        window_areas=window_areas, manifest=path, row=row,
+        window_areas=window_areas, gains_hours=_gains_hours(values.get("gains_hours"), where), manifest=path, row=row,
     )
+
+
+def _gains_name(gains):
+    """The ``--gains`` spelling of a gains model or schedule."""
+    kind = gains.get("kind", "constant") if isinstance(gains, dict) else str(gains)
+    return kind.replace("_", "-")
+
+
+def _gains_hours(value, where):
+    """A household's gains hours: a TOML list or a text ``9,12,20,2`` (``;`` too), checked as far
+    as a home alone allows (the count must match the run's ``--gains``, checked per home)."""
+    from thermorc.result import gains_schedule
+
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return None
+    if isinstance(value, str):
+        try:
+            value = [float(part) for part in value.replace(";", ",").split(",")]
+        except ValueError:
+            raise InputError(f"gains_hours {value!r}: expected hours separated by commas, e.g. 9,12,20,2",
+                             **where("gains_hours")) from None
+    if not isinstance(value, list) or not all(isinstance(h, (int, float)) and not isinstance(h, bool) for h in value):
+        raise InputError(f"gains_hours is {value!r} (expected start hours, e.g. 9,12,20,2)", **where("gains_hours"))
+    kind = {2: "day_night", 4: "four_period"}.get(len(value))
+    if kind is None:
+        raise InputError(f"gains_hours has {len(value)} hours (expected 2 for day-night or 4 for four-period gains)",
+                         **where("gains_hours"))
+    try:
+        gains_schedule(kind, value, where="gains_hours")
+    except InputError as exc:
+        raise InputError(exc.message, **where("gains_hours")) from None
+    return tuple(float(h) for h in value)
 
 
 def _partition(values, where):
@@ -642,6 +678,14 @@ def calibrate_home(home, model="auto", gains="constant", test_days=None):
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             log, table, digest = _log_input(home)
+            if home.gains_hours is not None:
+                from thermorc.result import gains_schedule
+
+                try:
+                    gains = gains_schedule(gains, list(home.gains_hours), where="gains_hours")
+                except InputError as exc:
+                    raise InputError(f"{exc.message} (the run's --gains is {_gains_name(gains)})", path=home.manifest,
+                                     row=home.row, column="gains_hours") from None
             result = calibrate_files(
                 log, column_map=home.column_map, tz=home.tz, interval=home.interval, weather=home.weather,
                 site=home.site, construction=home.construction, model=model, gains=gains, table=table,
@@ -785,7 +829,7 @@ def input_fingerprint(home, model="auto", gains="constant", test_days=None, cach
         "gains": gains,
     }
     # Only when given, so that the fingerprints of homes without a ground stay as they were.
-    record.update({k: getattr(home, k) for k in ("ground_c", "ground_share", "window_areas")
+    record.update({k: getattr(home, k) for k in ("ground_c", "ground_share", "window_areas", "gains_hours")
                    if getattr(home, k) is not None})
     if test_days is not None:
         record["test_days"] = float(test_days)
