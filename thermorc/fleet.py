@@ -420,27 +420,19 @@ def _gains_name(gains):
 def _gains_hours(value, where):
     """A household's gains hours: a TOML list or a text ``9,12,20,2`` (``;`` too), checked as far
     as a home alone allows (the count must match the run's ``--gains``, checked per home)."""
-    from thermorc.result import gains_schedule
+    from thermorc.result import gains_schedule, parse_gains_hours
 
     if value is None or (isinstance(value, str) and not value.strip()):
         return None
-    if isinstance(value, str):
-        try:
-            value = [float(part) for part in value.replace(";", ",").split(",")]
-        except ValueError:
-            raise InputError(f"gains_hours {value!r}: expected hours separated by commas, e.g. 9,12,20,2",
-                             **where("gains_hours")) from None
-    if not isinstance(value, list) or not all(isinstance(h, (int, float)) and not isinstance(h, bool) for h in value):
-        raise InputError(f"gains_hours is {value!r} (expected start hours, e.g. 9,12,20,2)", **where("gains_hours"))
-    kind = {2: "day_night", 4: "four_period"}.get(len(value))
-    if kind is None:
-        raise InputError(f"gains_hours has {len(value)} hours (expected 2 for day-night or 4 for four-period gains)",
-                         **where("gains_hours"))
     try:
-        gains_schedule(kind, value, where="gains_hours")
+        hours = parse_gains_hours(value, "gains_hours")
+        kind = {2: "day_night", 4: "four_period"}.get(len(hours))
+        if kind is None:
+            raise InputError(f"gains_hours has {len(hours)} hours (expected 2 for day-night or 4 for four-period gains)")
+        gains_schedule(kind, hours, where="gains_hours")
     except InputError as exc:
         raise InputError(exc.message, **where("gains_hours")) from None
-    return tuple(float(h) for h in value)
+    return tuple(hours)
 
 
 def _partition(values, where):

@@ -310,13 +310,12 @@ def parse_home(data, path):
         raise InputError(f"{model.get('gains')!r} (expected 'constant', 'day-night' or 'four-period')", path=path,
                          column="model.gains")
     if "gains_hours" in model:
-        from thermorc.result import gains_schedule
+        from thermorc.result import gains_schedule, parse_gains_hours
 
-        hours = model["gains_hours"]
-        if not isinstance(hours, list) or not all(isinstance(h, (int, float)) and not isinstance(h, bool) for h in hours):
-            raise InputError("expected a list of start hours, e.g. [9, 12, 20, 2]", path=path, column="model.gains_hours")
         try:
-            gains = gains_schedule(gains, hours, where="gains_hours")
+            if not isinstance(model["gains_hours"], list):
+                raise InputError("expected a list of start hours, e.g. [9, 12, 20, 2]")
+            gains = gains_schedule(gains, parse_gains_hours(model["gains_hours"], "gains_hours"), where="gains_hours")
         except InputError as exc:
             raise InputError(exc.message, path=path, column="model.gains_hours") from None
     step_min = _number(model.get("step_min"), path, "model.step_min", 1.0, 60.0, "minutes")

@@ -24,8 +24,8 @@ import pandas as pd
 from thermorc.errors import InputError
 from thermorc.network import GROUND, PRESETS, Network, preset_parameters, with_ground
 
-__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "GAINS_SCHEDULES", "gains_schedule", "gains_periods", "gains_period_labels",
-           "RESULT_FORMAT"]
+__all__ = ["CalibrationResult", "GAIN_PARAMETERS", "GAINS_SCHEDULES", "gains_schedule", "parse_gains_hours", "gains_periods",
+           "gains_period_labels", "RESULT_FORMAT"]
 
 #: Identifies the file layout; bump when keys change incompatibly.
 RESULT_FORMAT = "thermorc-calibration/1"
@@ -93,6 +93,37 @@ def gains_schedule(gains, hours=None, where="gains hours"):
     else:
         schedule["starts_h"] = hours
     return schedule
+
+
+def parse_gains_hours(value, where="gains hours"):
+    """
+    Start hours as a user gives them: a list of numbers, or a text ``9,12,20,2`` (``;`` too).
+
+    Parameters
+    ----------
+    value : str or list
+    where : str
+        What gave them, for messages.
+
+    Returns
+    -------
+    list of float
+        [h], not yet checked against a gains model (:func:`gains_schedule` does that).
+
+    Raises
+    ------
+    InputError
+        Anything but numbers.
+    """
+    if isinstance(value, str):
+        try:
+            return [float(part) for part in value.replace(";", ",").split(",")]
+        except ValueError:
+            raise InputError(f"{where} {value!r}: expected hours separated by commas, e.g. 9,12,20,2") from None
+    if not isinstance(value, (list, tuple)) or not all(isinstance(h, (int, float)) and not isinstance(h, bool)
+                                                       for h in value):
+        raise InputError(f"{where} is {value!r} (expected a list of start hours, e.g. [9, 12, 20, 2])")
+    return [float(h) for h in value]
 
 
 def _cyclic_hours(hours):

@@ -46,16 +46,12 @@ def gains_option(gains, hours_text, option="--gains-hours"):
         The name (``day_night`` spelling) when no hours are given; else the schedule
         (:func:`thermorc.result.gains_schedule`).
     """
-    from thermorc.result import gains_schedule
+    from thermorc.result import gains_schedule, parse_gains_hours
 
     name = gains.replace("-", "_")
     if hours_text is None:
         return name
-    try:
-        hours = [float(part) for part in hours_text.split(",")]
-    except ValueError:
-        raise InputError(f"{option} {hours_text!r}: expected hours separated by commas, e.g. 9,12,20,2") from None
-    return gains_schedule(name, hours, where=option)
+    return gains_schedule(name, parse_gains_hours(hours_text, option), where=option)
 
 
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
