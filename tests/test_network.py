@@ -7,6 +7,7 @@ from hypothesis import given, settings, strategies as st
 
 from thermorc.errors import NetworkError
 from thermorc.network import PRESETS, Network, preset_parameters
+from thermorc.simulate import simulate
 
 
 def test_1r1c_time_constant_is_rc():
@@ -51,6 +52,36 @@ def test_series_and_parallel_heat_loss_coefficients():
     h = net.heat_loss_coefficient_w_per_k()
     assert h["total"] == pytest.approx(expected, rel=1e-12)
     assert h["outdoor_c"] == pytest.approx(expected, rel=1e-12)
+
+
+def test_interior_node_carries_no_steady_loss():
+    # 4R3C: the interior node hangs on the indoor node only, so in steady state no heat flows
+    # through it and UA is the 3R2C's series-plus-parallel sum (Ohm's-law analogy of steady
+    # conduction, common practice). Its step response to sun on the interior node against
+    # scipy.signal.lsim of the state matrix written out by hand.
+    import scipy.signal
+
+    r_ie, r_eo, r_io, r_im, c_i, c_e, c_m = 0.001, 0.004, 0.02, 0.0008, 2e6, 2e7, 1e7
+    net = Network.from_preset(
+        "4R3C", r_indoor_envelope_k_per_w=r_ie, r_envelope_outdoor_k_per_w=r_eo, r_indoor_outdoor_k_per_w=r_io,
+        r_indoor_interior_k_per_w=r_im, c_indoor_j_per_k=c_i, c_envelope_j_per_k=c_e, c_interior_j_per_k=c_m,
+        solar_aperture_m2=4.0, solar_to_interior_share=0.75,
+    )
+    assert net.heat_loss_coefficient_w_per_k()["total"] == pytest.approx(1 / (r_ie + r_eo) + 1 / r_io, rel=1e-12)
+    g_ie, g_eo, g_io, g_im = 1 / r_ie, 1 / r_eo, 1 / r_io, 1 / r_im
+    a = np.array([[-(g_ie + g_io + g_im) / c_i, g_ie / c_i, g_im / c_i],
+                  [g_ie / c_e, -(g_ie + g_eo) / c_e, 0.0],
+                  [g_im / c_m, 0.0, -g_im / c_m]])
+    b_sun = np.array([4.0 * 0.25 / c_i, 0.0, 4.0 * 0.75 / c_m])
+    space = net.state_space()
+    order = [space.states.index(n) for n in ("indoor", "envelope", "interior")]
+    np.testing.assert_allclose(space.a[np.ix_(order, order)], a, rtol=1e-12)
+    t = np.arange(0, 48 * 3600.0, 600.0)
+    ref = scipy.signal.lsim((a, b_sun[:, None], np.eye(3)[:1], [[0.0]]), np.full(t.size, 500.0), t)[1]
+    frame = pd.DataFrame({"outdoor_c": 0.0, "heating_w": 0.0, "solar_w_m2": 500.0, "internal_w": 0.0},
+                         index=pd.date_range("2024-01-01", periods=t.size, freq="10min"))
+    sim = simulate(net, frame, x0=[0.0, 0.0, 0.0], interval_means=False).temperatures_c["indoor"].to_numpy()
+    np.testing.assert_allclose(sim, ref, atol=1e-8)
 
 
 def test_two_boundaries_split_the_loss():
@@ -126,8 +157,8 @@ def test_preset_parameter_errors_name_the_parameters():
     with pytest.raises(NetworkError, match="has no parameter"):
         Network.from_preset("1R1C", r_indoor_outdoor_k_per_w=0.01, c_indoor_j_per_k=1e7, colour=3)
     with pytest.raises(NetworkError, match="unknown model"):
-        Network.from_preset("4R3C")
-    assert set(PRESETS) == {"1R1C", "2R2C", "3R2C"}
+        Network.from_preset("5R4C")
+    assert set(PRESETS) == {"1R1C", "2R2C", "3R2C", "4R3C"}
     assert "solar_aperture_m2" in preset_parameters("3R2C")
 
 

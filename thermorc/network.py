@@ -43,6 +43,7 @@ from thermorc.errors import NetworkError, PrecisionWarning
 
 __all__ = [
     "Network",
+    "step_participation",
     "StateSpace",
     "Modes",
     "Preset",
@@ -179,6 +180,50 @@ def modes_of(space: StateSpace) -> Modes:
     w = v / root[:, None]
     w_inv = v.T * root[None, :]
     return Modes(rates_per_s=rates, w=w, w_inv=w_inv)
+
+
+def step_participation(network, weights, input_channel=HEATING):
+    r"""
+    Share of each mode in an output's steady rise after a unit step of one heat input.
+
+    Parameters
+    ----------
+    network : Network
+    weights : array_like, shape (n_nodes,)
+        The output as a weighted sum of node temperatures (one 1 for a single node).
+    input_channel : str
+        The heat input that steps.
+
+    Returns
+    -------
+    time_constants_s : numpy.ndarray
+        Time constants of the modes, slowest first. [s]
+    participation : numpy.ndarray
+        Each mode's share of the steady rise, same order (they sum to 1 less any direct
+        feed-through of a massless output). [unitless]
+
+    Notes
+    -----
+    In modal coordinates the step response of the output is
+    :math:`y(t) = \sum_j (r_j/\lambda_j)(1 - e^{-\lambda_j t})` with residues
+    :math:`r_j = (c W)_j (W^{-1} b)_j` [1]_; mode :math:`j`'s participation is
+    :math:`p_j = (r_j/\lambda_j) / y(\infty)`. A mode the output hardly sees has a tiny
+    :math:`p_j` however slow it is, and a log of that output cannot determine it.
+
+    References
+    ----------
+    .. [1] T. Kailath, Linear Systems. Prentice-Hall, 1980, ch. 2 (modal decomposition and
+       residues of a transfer function).
+    """
+    space = network.state_space()
+    modes = modes_of(space)
+    ci = list(space.inputs).index(input_channel)
+    w = np.asarray(weights, dtype=float)
+    c_out = w @ space.c
+    residues = (c_out @ modes.w) * (modes.w_inv @ space.b[:, ci])
+    gains = residues / modes.rates_per_s
+    p = gains / (gains.sum() + float(w @ space.d[:, ci]))
+    return modes.time_constants_s, p
 
 
 class Network:
@@ -522,7 +567,7 @@ class Network:
 
         Parameters
         ----------
-        name : {'1R1C', '2R2C', '3R2C'}
+        name : {'1R1C', '2R2C', '3R2C', '4R3C'}
             Preset (see :data:`PRESETS` and docs/models.md).
         params : dict, optional
             Parameter name -> SI value; keyword arguments are merged in.
@@ -616,14 +661,32 @@ def _build_2r2c(p, parallel=False):
     net.add_resistance("envelope", OUTDOOR, p["r_envelope_outdoor_k_per_w"])
     if parallel:
         net.add_resistance("indoor", OUTDOOR, p["r_indoor_outdoor_k_per_w"])
-    share = p["solar_to_envelope_share"]
+    return _room_inputs(net, p, "envelope")
+
+
+def _room_inputs(net, p, sunlit):
+    """Heating and internal gains on the indoor node; the sun split between it and ``sunlit``."""
+    share = p[f"solar_to_{sunlit}_share"]
     if not 0.0 <= share <= 1.0:
-        raise NetworkError(f"solar_to_envelope_share is {share:g} (expected 0..1)")
+        raise NetworkError(f"solar_to_{sunlit}_share is {share:g} (expected 0..1)")
     net.add_heat_input(HEATING, "indoor", 1.0)
     net.add_heat_input(SOLAR, "indoor", p["solar_aperture_m2"] * (1.0 - share))
-    net.add_heat_input(SOLAR, "envelope", p["solar_aperture_m2"] * share)
+    net.add_heat_input(SOLAR, sunlit, p["solar_aperture_m2"] * share)
     net.add_heat_input(INTERNAL, "indoor", 1.0)
     return net
+
+
+def _build_4r3c(p):
+    net = _zone("4R3C")
+    net.add_node("indoor", p["c_indoor_j_per_k"]).add_node("envelope", p["c_envelope_j_per_k"])
+    net.add_node("interior", p["c_interior_j_per_k"])
+    net.add_resistance("indoor", "envelope", p["r_indoor_envelope_k_per_w"])
+    net.add_resistance("envelope", OUTDOOR, p["r_envelope_outdoor_k_per_w"])
+    net.add_resistance("indoor", OUTDOOR, p["r_indoor_outdoor_k_per_w"])
+    net.add_resistance("indoor", "interior", p["r_indoor_interior_k_per_w"])
+    # Sun through the windows lands on the room: its air and contents, and the floors and
+    # furniture of the interior node; none goes straight into the envelope's mass.
+    return _room_inputs(net, p, "interior")
 
 
 PRESETS = {
@@ -653,6 +716,21 @@ PRESETS = {
         lambda p: _build_2r2c(p, parallel=True),
         "2R2C plus a direct indoor-outdoor path (windows, air leakage) in parallel",
         optional={"solar_aperture_m2": 0.0, "solar_to_envelope_share": 0.0},
+    ),
+    "4R3C": Preset(
+        "4R3C",
+        (
+            "r_indoor_envelope_k_per_w",
+            "r_envelope_outdoor_k_per_w",
+            "r_indoor_outdoor_k_per_w",
+            "r_indoor_interior_k_per_w",
+            "c_indoor_j_per_k",
+            "c_envelope_j_per_k",
+            "c_interior_j_per_k",
+        ),
+        _build_4r3c,
+        "3R2C plus an interior-mass node (floors, partitions, furniture) hung on the indoor node",
+        optional={"solar_aperture_m2": 0.0, "solar_to_interior_share": 0.0},
     ),
 }
 

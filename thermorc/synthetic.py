@@ -70,7 +70,7 @@ import scipy.signal
 
 from thermorc.construction import R_SE_M2K_PER_W, R_SI_M2K_PER_W, RHO_C_AIR_J_PER_M3K, load_materials
 from thermorc.errors import InputError
-from thermorc.network import Network, modes_of
+from thermorc.network import Network, modes_of, step_participation
 from thermorc.simulate import phi_functions
 
 __all__ = [
@@ -732,16 +732,7 @@ def relevant_time_constant(network, weights, input_channel=HEATING, min_particip
     .. [1] T. Kailath, Linear Systems. Prentice-Hall, 1980, ch. 2 (modal decomposition and
        residues of a transfer function).
     """
-    space = network.state_space()
-    modes = modes_of(space)
-    ci = list(space.inputs).index(input_channel)
-    c_out = np.asarray(weights, dtype=float) @ space.c  # over states
-    d_out = float(np.asarray(weights, dtype=float) @ space.d[:, ci])
-    residues = (c_out @ modes.w) * (modes.w_inv @ space.b[:, ci])
-    gains = residues / modes.rates_per_s
-    total = gains.sum() + d_out
-    p = gains / total
-    tau = modes.time_constants_s
+    tau, p = step_participation(network, weights, input_channel)
     ok = np.flatnonzero(p >= min_participation)
     relevant = float(tau[ok[0]]) if ok.size else float(tau[np.argmax(p)])
     return {
