@@ -277,6 +277,36 @@ def test_auto_keeps_the_simplest_adequate_model(rows, chosen):
     assert estimate._choose_model(table) == chosen
 
 
+def test_auto_passes_over_a_slow_mode_the_indoor_air_hardly_shows():
+    # Worked by hand: the 4R3C predicts best but its slowest mode carries 7 % of the indoor
+    # step response to heating (under MIN_SLOW_PARTICIPATION), so the 3R2C is kept.
+    table = [{"model": "3R2C", "holdout_rmse_k": 0.30, "slowest_mode_in_record": True, "slowest_mode_participation": 0.96},
+             {"model": "4R3C", "holdout_rmse_k": 0.20, "slowest_mode_in_record": True, "slowest_mode_participation": 0.07}]
+    assert estimate._choose_model(table) == "3R2C"
+    table[1]["slowest_mode_participation"] = 0.5
+    assert estimate._choose_model(table) == "4R3C"
+
+
+def test_slowest_participation_of_a_fitted_two_node_model():
+    # The participation of the 2R2C's slow mode in the indoor step response, against the
+    # closed form of the two-node transfer function's partial fractions computed with
+    # scipy.signal.residue on the same network (an outside reference).
+    import scipy.signal
+
+    log, _, _ = stochastic_log(seed=4, days=8)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log, model="2R2C", energy_metrics=False)
+    space = res.network().state_space()
+    i = list(space.inputs).index("heating_w")
+    # Time in hours keeps the polynomial coefficients of ss2tf well scaled.
+    num, den = scipy.signal.ss2tf(space.a * 3600, space.b[:, i:i + 1] * 3600, space.c[:1], space.d[:1, i:i + 1])
+    r, p, _ = scipy.signal.residue(num[0], den)
+    gains = (-r / p).real  # each mode's share of the steady rise, before normalising
+    slow = np.argmin(np.abs(p.real))
+    assert estimate._slowest_participation(res.network()) == pytest.approx(gains[slow] / gains.sum(), rel=1e-6)
+
+
 def test_ua_prior_combines_with_the_data_by_their_information():
     # Gaussian prior times Gaussian likelihood in log UA: the posterior mean is the
     # precision-weighted mean and the posterior variance the inverse of the summed precisions

@@ -44,6 +44,20 @@ def test_three_weeks_with_setbacks_support_3r2c():
     assert "up to 3R2C" in report.verdict
 
 
+def test_4r3c_needs_three_weeks_on_top_of_the_3r2c_requirements():
+    # Thermorc's own rule (REQUIREMENTS): 4R3C sits off the ladder, so the verdict never names
+    # it, and require_model asks for 3R2C's evidence and then 21 observed days.
+    short = quality.inspect_log(align(synthetic(16), 900))
+    assert short.highest_order == "3R2C" and "4R3C" not in short.verdict
+    with pytest.raises(InputError, match="too little data for 4R3C: 4R3C needs 21 observed days"):
+        quality.require_model(short, "4R3C", path="log.csv")
+    with pytest.raises(InputError, match="too little data for 3R2C"):
+        quality.require_model(quality.inspect_log(align(synthetic(8), 900)), "4R3C")
+    long = quality.inspect_log(align(synthetic(22), 900))
+    quality.require_model(long, "4R3C")
+    assert long.supported == ["1R1C", "2R2C", "3R2C"]
+
+
 def test_a_log_the_heating_hardly_ran_in_is_flagged():
     # The heater on for 3 of 96 quarter-hours a day: about 3 % of the time, under the 5 %
     # below which the report says the heat loss coefficient may not be identifiable.

@@ -23,7 +23,10 @@ RC = {
     "1R1C": [5e-3, 3e7],
     "2R2C": [1e-3, 4e-3, 4e6, 6e7],
     "3R2C": [1.2e-3, 5e-3, 2e-2, 4e6, 6e7],
+    "4R3C": [1.2e-3, 5e-3, 2e-2, 8e-4, 4e6, 6e7, 2e7],
 }
+# Nodes the sun heats in each preset (indoor first), as docs/models.md draws them.
+SUN_NODES = {"1R1C": [0], "2R2C": [0, 1], "3R2C": [0, 1], "4R3C": [0, 2]}
 
 
 @pytest.fixture(scope="module")
@@ -52,8 +55,8 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
     # the outdoor temperature and held powers (the two are run separately and added, since
     # lsim takes one interpolation for all inputs).
     rng = np.random.default_rng(0)
-    n_solar = 1 if model == "1R1C" else 2
-    apertures = rng.uniform(1, 5, n_solar)
+    sun_nodes = SUN_NODES[model]
+    apertures = rng.uniform(1, 5, len(sun_nodes))
     # The periods by hand (not through gains_period_labels): day 07-23 h, or the four
     # periods morning 06-09, daytime 09-17, evening 17-23 and night 23-06 h.
     hour = data.index.hour
@@ -61,7 +64,7 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
              "four_period": np.select([(hour >= 6) & (hour < 9), (hour >= 9) & (hour < 17), (hour >= 17) & (hour < 23)],
                                       [0, 1, 2], 3)}[gains]
     levels = rng.uniform(100, 400, label.max() + 1)
-    hidden = rng.uniform(10, 18, 2)
+    hidden = rng.uniform(10, 18, 4)
     periods = None if gains == "constant" else (label, levels.size)
     basis = ResponseBasis(model, data, periods, np.full(len(data.y), -1), 0)
     rows = basis.rows(RC[model])
@@ -75,10 +78,11 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
         t = np.arange(seg.stop - seg.start) * data.step_s
         gain_w = levels[label[seg]]
         power = np.zeros((len(t), n))
-        power[:, 0] = u[:, 1] + u[:, 3] + gain_w + apertures[0] * u[:, 2]
-        if n_solar == 2:
-            power[:, 1] = apertures[1] * u[:, 2]
-        x0 = np.array([data.y[seg][0]] + ([hidden[seg_no]] if n == 2 else []))
+        power[:, 0] = u[:, 1] + u[:, 3] + gain_w
+        for node, aperture in zip(sun_nodes, apertures):
+            power[:, node] += aperture * u[:, 2]
+        # Hidden start states segment by segment, in node order within a segment.
+        x0 = np.array([data.y[seg][0]] + list(hidden[seg_no * (n - 1):(seg_no + 1) * (n - 1)]))
         held = scipy.signal.lsim((a, np.diag(1 / caps), np.eye(n)[:1], np.zeros((1, n))), power, t, X0=x0, interp=False)[1]
         ramp = scipy.signal.lsim((a, (g_out / caps)[:, None], np.eye(n)[:1], np.zeros((1, 1))), u[:, 0], t, interp=True)[1]
         np.testing.assert_allclose(modelled[seg], held + ramp, atol=1e-7)
@@ -142,11 +146,25 @@ def test_closed_form_modes_match_eigh():
         np.testing.assert_allclose(np.abs(v.T @ ref_v), np.eye(2), atol=1e-7)
 
 
-@pytest.mark.parametrize("model,gains", [("1R1C", "constant"), ("2R2C", "day_night"), ("3R2C", "constant"), ("2R2C", "four_period")])
+def test_three_node_modes_rebuild_the_matrix():
+    # Three nodes go to numpy.linalg.eigh; the modes must rebuild C^-1/2 K C^-1/2 and match
+    # scipy.linalg.eigvals of C^-1 K (the rates of the network's state matrix).
+    import scipy.linalg
+
+    k, _, caps = preset_matrices("4R3C", RC["4R3C"])
+    s = k / np.sqrt(np.outer(caps, caps))
+    rates, v = symmetric_modes(s)
+    np.testing.assert_allclose(v @ np.diag(rates) @ v.T, s, rtol=1e-10, atol=1e-12 * np.abs(s).max())
+    ref = np.sort(scipy.linalg.eigvals(k / caps[:, None]).real)
+    np.testing.assert_allclose(rates, ref, rtol=1e-9)
+
+
+@pytest.mark.parametrize("model,gains", [("1R1C", "constant"), ("2R2C", "day_night"), ("3R2C", "constant"), ("2R2C", "four_period"),
+                                         ("4R3C", "day_night")])
 def test_holdout_from_the_responses_equals_predict(model, gains):
     # The held-out score continues the training simulation; thermorc.estimate.predict (a plain
     # run of the network through thermorc.simulate) must give the same RMSE.
-    log, _, _ = stochastic_log(seed=5, days=10, step_s=900.0)
+    log, _, _ = stochastic_log(seed=5, days=20 if model == "4R3C" else 10, step_s=900.0)  # 4R3C needs 14 days
     data = estimate.calibration_data(log)
     cut = int(len(data.y) * 0.8)
     train = data.subset(cut)

@@ -89,7 +89,7 @@ def run_demo(out_dir, log=print, progress=None, root=None, model="auto"):
         Receives the name of each stage as it starts (for a spinner).
     root : str or os.PathLike, optional
         Repository folder (see :func:`demo_paths`).
-    model : {'auto', '1R1C', '2R2C', '3R2C'}
+    model : {'auto', '1R1C', '2R2C', '3R2C', '4R3C'}
         Model of the calibration stage.
 
     Returns

@@ -58,7 +58,7 @@ from thermorc.errors import (
     InputError,
     NetworkError,
 )
-from thermorc.network import PRESETS, Network, modes_of
+from thermorc.network import HEATING, PRESETS, Network, modes_of, step_participation
 from thermorc.result import CalibrationResult, gains_period_labels, gains_periods, gains_schedule
 from thermorc.separable import ResponseBasis, preset_matrices, symmetric_modes
 from thermorc.simulate import _setpoint_steady_state, heater_power, run_modes, sensed_temperature
@@ -293,7 +293,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
 
     Parameters
     ----------
-    model : {'1R1C', '2R2C', '3R2C'}
+    model : {'1R1C', '2R2C', '3R2C', '4R3C'}
         Preset.
     data : CalibrationData
         The log.
@@ -628,9 +628,20 @@ def _periods(index, schedule):
     return gains_period_labels(index, schedule), len(gains_periods(schedule)[1])
 
 
-def _solar_onto_nodes(aperture_m2, share, n_solar):
-    """Aperture onto the indoor node, then onto the envelope node (two-node presets). [m²]"""
-    return [aperture_m2 * (1 - share), aperture_m2 * share][:n_solar]
+def _solar_shares(model):
+    """Names of a preset's solar shares, one per capacitive node after the indoor one."""
+    return [name for name in PRESETS[model].optional if name.startswith("solar_to_")]
+
+
+def _preset_nodes(model):
+    """Capacitive nodes of a preset, indoor first, from its capacitance names."""
+    return tuple(name[len("c_"):-len("_j_per_k")] for name in PRESETS[model].parameters if name.startswith("c_"))
+
+
+def _solar_onto_nodes(aperture_m2, shares, n_solar):
+    """Aperture onto the indoor node, then onto each further node (the shares of it). [m²]"""
+    shares = [float(x) for x in shares][: max(n_solar - 1, 0)]
+    return ([aperture_m2 * max(1.0 - sum(shares), 0.0)] + [aperture_m2 * x for x in shares])[:n_solar]
 
 
 class _Layout:
@@ -646,9 +657,9 @@ class _Layout:
             self.params.append(_Param(name, True, lo, hi, start[name]))
         if data.has_solar:
             self.params.append(_Param("solar_aperture_m2", True, *APERTURE_BOUNDS_M2, start["solar_aperture_m2"]))
-            if model != "1R1C":
-                # Sun lands on floors and furniture as much as on the air: let the data split it.
-                self.params.append(_Param("solar_to_envelope_share", False, 0.0, 1.0, start.get("solar_to_envelope_share", 0.3)))
+            # Sun lands on floors and furniture as much as on the air: let the data split it.
+            for name in _solar_shares(model):
+                self.params.append(_Param(name, False, 0.0, 1.0, start.get(name, 0.2)))
         self.gains_names = gains_periods(gains_schedule(gains))[1]
         for name in self.gains_names:
             self.params.append(_Param(name, False, *GAINS_BOUNDS_W, start["internal_gains_w"]))
@@ -666,7 +677,7 @@ class _Layout:
         self.periods = _periods(data.index, gains_schedule(gains))
 
     def _states(self):
-        return ("indoor",) if self.model == "1R1C" else ("indoor", "envelope")
+        return _preset_nodes(self.model)
 
     @property
     def names(self):
@@ -694,8 +705,7 @@ class _Layout:
         v = self.values(theta)
         p = {k: v[k] for k in PRESETS[self.model].parameters}
         p["solar_aperture_m2"] = v.get("solar_aperture_m2", 0.0)
-        if "solar_to_envelope_share" in v:
-            p["solar_to_envelope_share"] = v["solar_to_envelope_share"]
+        p.update({name: v[name] for name in _solar_shares(self.model) if name in v})
         return Network.from_preset(self.model, p)
 
     def gains_series(self, theta, rows=slice(None)):
@@ -739,6 +749,20 @@ def _start_values(model, data, previous=None):
     # R and C need starting values; these placeholders only fill the layout.
     start = {"solar_aperture_m2": 1.0, "internal_gains_w": 0.0}
     previous = previous or None
+    if model == "4R3C":
+        if previous is not None and "r_indoor_interior_k_per_w" in previous:
+            return [{**start, **{p: previous[p] for p in PRESETS[model].parameters}}]
+        # From each 3R2C start: part of the envelope's capacity moved onto an interior node
+        # coupled as tightly as the envelope's surface, and the 3R2C itself (an interior node
+        # too small and too loosely coupled to matter), so the search can only improve on it.
+        out = []
+        for base in _start_values("3R2C", data, previous):
+            c_env, r_ie = base["c_envelope_j_per_k"], base["r_indoor_envelope_k_per_w"]
+            for moved, coupling in ((0.5, 1.0), (0.2, 0.3)):
+                out.append({**base, "c_envelope_j_per_k": c_env * (1 - moved), "c_interior_j_per_k": c_env * moved,
+                            "r_indoor_interior_k_per_w": r_ie * coupling})
+            out.append({**base, "c_interior_j_per_k": C_BOUNDS_J_PER_K[0] * 10, "r_indoor_interior_k_per_w": r_ie * 100})
+        return out
     if previous is not None and "_ua" in previous and "_tau" in previous:
         ua, tau = previous["_ua"], previous["_tau"]
     else:
@@ -805,12 +829,29 @@ def _blocks(data, observed, block):
     return block_id, n_blocks
 
 
+#: Least share of the indoor temperature's step response to heating that the slowest mode must
+#: carry for the log to determine it (the 10 % the fine homes' relevant mode is defined by,
+#: thermorc.synthetic.RELEVANT_PARTICIPATION); ``auto`` passes over candidates under it and a
+#: calibration under it warns. [unitless]
+MIN_SLOW_PARTICIPATION = 0.10
+
+
+def _slowest_participation(network):
+    """Share of the indoor step response to heating carried by the slowest mode. [unitless]"""
+    weights = [1.0 if node == "indoor" else 0.0 for node in network.state_space().states]
+    try:
+        return float(step_participation(network, weights, HEATING)[1][0])
+    except NetworkError:
+        return math.nan
+
+
 def _ua_of(model, rc):
     """Steady-state heat loss coefficient of a preset from its R and C. [W K⁻¹]"""
     if model == "1R1C":
         return 1.0 / rc[0]
     series = 1.0 / (rc[0] + rc[1])
-    return series + (1.0 / rc[2] if model == "3R2C" else 0.0)
+    # 4R3C's interior node has no path out: its UA is the 3R2C's.
+    return series + (1.0 / rc[2] if model in ("3R2C", "4R3C") else 0.0)
 
 
 def _dlog_ua_dlog(model, rc, i, step=1e-6):
@@ -934,11 +975,10 @@ def _full_solution(layout, basis, theta_rc, prior_residual, prior):
     if basis.has_solar:
         onto = coef[:n_solar]
         aperture = float(onto.sum())
-        share = float(onto[1] / aperture) if n_solar == 2 and aperture > 0 else 0.0
         theta[pos] = math.log(max(aperture, APERTURE_BOUNDS_M2[0]))
         pos += 1
-        if n_solar == 2:
-            theta[pos] = min(max(share, 0.0), 1.0)
+        for node in range(1, n_solar):
+            theta[pos] = min(max(float(onto[node] / aperture) if aperture > 0 else 0.0, 0.0), 1.0)
             pos += 1
     n_tail = len(theta) - pos
     theta[pos:] = coef[n_solar:n_solar + n_tail]
@@ -951,8 +991,8 @@ def _full_solution(layout, basis, theta_rc, prior_residual, prior):
     # Linear coefficients as the layout's values imply them (the clipping above included).
     values = layout.values(theta)
     a_total = values.get("solar_aperture_m2", 0.0)
-    sh = values.get("solar_to_envelope_share", 0.0)
-    lin_coef = np.array(_solar_onto_nodes(a_total, sh, n_solar) + list(theta[pos:]))
+    shares = [values.get(name, 0.0) for name in _solar_shares(model)]
+    lin_coef = np.array(_solar_onto_nodes(a_total, shares, n_solar) + list(theta[pos:]))
     residual = basis.y_blocks - (fixed + linear @ lin_coef)
     jac = np.zeros((residual.size, len(theta)))
     for i in range(n_rc):
@@ -966,13 +1006,12 @@ def _full_solution(layout, basis, theta_rc, prior_residual, prior):
             jac[:, i] = 0.0
     col = n_rc
     if basis.has_solar:
-        if n_solar == 2:
-            jac[:, col] = -a_total * ((1 - sh) * linear[:, 0] + sh * linear[:, 1])
-            jac[:, col + 1] = -a_total * (linear[:, 1] - linear[:, 0])
-            col += 2
-        else:
-            jac[:, col] = -a_total * linear[:, 0]
-            col += 1
+        # Aperture onto node i is A * s_i (indoor: A * (1 - sum of the others' shares)).
+        onto = np.array(_solar_onto_nodes(a_total, shares, n_solar))
+        jac[:, col] = -linear[:, :n_solar] @ onto
+        for node in range(1, n_solar):
+            jac[:, col + node] = -a_total * (linear[:, node] - linear[:, 0])
+        col += n_solar
     jac[:, col:] = -linear[:, n_solar:]
     if prior is not None:
         residual = np.append(residual, prior_residual(rc))
@@ -1285,7 +1324,7 @@ def calibrate(
     log : thermorc.align.AlignedData, pandas.DataFrame or CalibrationData
         Uniform grid with ``indoor_c`` [°C], ``heating_w`` [W], ``outdoor_c`` [°C] and
         optionally ``ghi_w_m2`` [W m⁻²] and ``internal_gains_w`` [W].
-    model : {'1R1C', '2R2C', '3R2C'}
+    model : {'1R1C', '2R2C', '3R2C', '4R3C'}
         Preset to fit.
     gains : {'constant', 'day_night', 'four_period'} or dict
         Model of the unlogged internal gains (periods of local time: :data:`thermorc.result.GAINS_SCHEDULES`),
@@ -1501,6 +1540,14 @@ def calibrate(
                 f"The slowest time constant ({slow_h:.0f} h) is longer than the record ({record_h:.0f} h): the data "
                 "do not determine it (a lower limit at best). Use a longer log, or one with night setbacks or "
                 "periods with the heating off.")
+        slow_share = _slowest_participation(layout.network(theta))
+        if layout.model != "1R1C" and slow_share < MIN_SLOW_PARTICIPATION:
+            # A slow mode the indoor air hardly shows can drift to any length at little cost
+            # in fit, and it still carries part of UA.
+            result_warnings.append(
+                f"The slowest mode ({slow_h:.0f} h) carries only {100 * slow_share:.0f} % of the indoor temperature's "
+                "response to a step of heating: the log hardly shows it, so its time constant and the part of UA it "
+                "carries rest on the model's form. Prefer a simpler model (--model auto).")
         if share < MIN_HEATING_SHARE:
             result_warnings.append(
                 f"The measured heating supplied only {100 * share:.0f} % of the heat over the record (the sun and the "
@@ -1553,8 +1600,8 @@ def calibrate(
     physical_full = dict(physical)
     physical_full.setdefault("solar_aperture_m2", 0.0)
     physical_full[SENSOR_PARAMETER] = sensor["time_constant_s"]
-    if "solar_to_envelope_share" in PRESETS[model].optional:
-        physical_full.setdefault("solar_to_envelope_share", 0.0)
+    for name in _solar_shares(model):
+        physical_full.setdefault(name, 0.0)
     log_names = [p.name for p in layout.params[: layout.n_physical] if p.log]
     idx = [i for i, p in enumerate(layout.params[: layout.n_physical]) if p.log]
     # Parameters at a bound get zero variance in the Monte Carlo draws (they were not estimated).
@@ -1778,7 +1825,7 @@ def _check_identifiable(data: CalibrationData, model, path):
     y = data.y[inside]
     heat = data.u[inside, 1]
     days = len(inside) * data.step_s / 86400
-    need_days = {"1R1C": 2.0, "2R2C": 5.0, "3R2C": 7.0}[model]
+    need_days = {"1R1C": 2.0, "2R2C": 5.0, "3R2C": 7.0, "4R3C": 14.0}[model]
     if days < need_days:
         raise InputError(
             f"only {days:.1f} days of complete data; model {model} needs at least {need_days:g} days "
@@ -2100,6 +2147,7 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
             "time_constants_h": res.time_constants_h,
             # Less than one e-fold of the slowest mode in the record: the data do not fix it.
             "slowest_mode_in_record": bool(res.time_constants_h[0] <= record_h),
+            "slowest_mode_participation": _slowest_participation(res.network()),
         })
     usable = [r for r in rows if "skipped" not in r]
     if not usable:
@@ -2147,9 +2195,11 @@ def _choose_model(rows):
         The simplest model within 5 % (or 0.02 K) of the best held-out RMSE, among those
         whose slowest mode is within the record (all of them when none is).
     """
-    # A model whose slowest mode the record does not hold is not adequate, however well it
-    # predicts the tail.
-    adequate = [r for r in rows if r["slowest_mode_in_record"]] or rows
+    # A model whose slowest mode the record does not hold, or the indoor temperature hardly
+    # shows, is not adequate, however well it predicts the tail: that mode is not determined
+    # by the log, yet it sets UA and the reported time constant.
+    adequate = [r for r in rows if r["slowest_mode_in_record"]
+                and not r.get("slowest_mode_participation", 1.0) < MIN_SLOW_PARTICIPATION] or rows
     scores = [r["holdout_rmse_k"] for r in adequate if math.isfinite(r["holdout_rmse_k"])]
     best = min(scores) if scores else math.nan
     for r in adequate:
@@ -2172,10 +2222,11 @@ def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
         model = result.model
         basis = ResponseBasis(model, data, _periods(data.index, result.gains_schedule), np.full(len(data.y), -1), 0)
         rows = basis.rows([p[name] for name in PRESETS[model].parameters])
-        coef = _solar_onto_nodes(p["solar_aperture_m2"], p.get("solar_to_envelope_share", 0.0), basis.n_solar)
+        coef = _solar_onto_nodes(p["solar_aperture_m2"], [p.get(name, 0.0) for name in _solar_shares(model)],
+                                 basis.n_solar)
         coef += [p[name] for name in gains_periods(result.gains_schedule)[1]]
         states = result.extras["estimator"]["initial_states"]
-        coef += [states[f"x0_envelope_segment{k}"] for k in range(basis.n_hidden)]
+        coef += [states[f"x0_{node}_segment{k}"] for k in range(len(data.segments)) for node in _preset_nodes(model)[1:]]
         pred = _sensed(rows[:, 0] + rows[:, 1:] @ np.array(coef), data.segments, data.step_s,
                        float(p.get(SENSOR_PARAMETER, 0.0)))
         inside = np.zeros(len(data.y), dtype=bool)

@@ -68,7 +68,7 @@ MANIFEST_COLUMNS = (
     "construction", "ground_c", "ground_share", "window_areas", "gains_hours",
 )
 _PATH_COLUMNS = ("log", "column_map", "weather", "construction")
-_MODELS = ("1R1C", "2R2C", "3R2C", "auto")
+_MODELS = ("1R1C", "2R2C", "3R2C", "4R3C", "auto")
 
 # Plausible floor areas of one dwelling (common practice: a studio flat has some 20 m2, a
 # large detached house some 1000 m2; the wide span only catches unit and typing errors).
@@ -644,7 +644,7 @@ def calibrate_home(home, model="auto", gains="constant", test_days=None):
     ----------
     home : HomeSpec or dict
         The home (a dict is passed to :class:`HomeSpec`).
-    model : {'1R1C', '2R2C', '3R2C', 'auto'}
+    model : {'1R1C', '2R2C', '3R2C', '4R3C', 'auto'}
         Model to fit, or ``auto`` to compare all three.
     gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
@@ -1376,7 +1376,7 @@ def run_fleet(
     scheduler : str, optional
         Address of a running Dask distributed scheduler (e.g. ``tcp://10.0.0.5:8786``); the
         homes run there instead of on a local pool.
-    model : {'1R1C', '2R2C', '3R2C', 'auto'}
+    model : {'1R1C', '2R2C', '3R2C', '4R3C', 'auto'}
         Model for every home.
     gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.

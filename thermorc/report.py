@@ -96,7 +96,7 @@ _HOME_KEYS = {"name", "floor_area_m2", "log", "weather", "site", "construction",
 _LOG_KEYS = {"file", "column_map", "tz", "interval"}
 _SITE_KEYS = {"name", "latitude", "longitude", "altitude_m", "tz", "file"}
 _MODEL_KEYS = {"preset", "gains", "gains_hours", "step_min", "result"}
-_PRESETS = ("1R1C", "2R2C", "3R2C", "auto")
+_PRESETS = ("1R1C", "2R2C", "3R2C", "4R3C", "auto")
 
 # Colours of our own: deep teal, ember, slate, sand, moss.
 TEAL, EMBER, SLATE, SAND, MOSS = "#1d6a72", "#d2603a", "#3f4b5c", "#e3b868", "#6b8e4e"
@@ -137,7 +137,7 @@ class HomeFile:
         Ground temperature [°C] and the share of the heat loss that goes to it, as
         ``calibrate --ground-c/--ground-share`` (the share may come from the construction).
     preset : str
-        ``'1R1C'``, ``'2R2C'``, ``'3R2C'`` or ``'auto'``.
+        ``'1R1C'``, ``'2R2C'``, ``'3R2C'``, ``'4R3C'`` or ``'auto'``.
     gains : str or dict
         ``'constant'``, ``'day_night'`` or ``'four_period'``, or the schedule with the
         household's own hours (``[model] gains_hours``, :func:`thermorc.result.gains_schedule`).
@@ -666,6 +666,7 @@ def _unit_label(name):
         "heat_loss_coefficient_w_per_k": ("heat loss coefficient UA", "W/K", 1.0),
         "capacitance_j_per_k": ("total heat capacity", "MJ/K", 1e-6),
         "solar_to_envelope_share": ("share of solar gain on the envelope node", "-", 1.0),
+        "solar_to_interior_share": ("share of solar gain on the interior-mass node", "-", 1.0),
         "solar_aperture_m2": ("solar aperture", "m2", 1.0),
     }
     if name in special:

@@ -206,7 +206,7 @@ class CalibrationResult:
     Attributes
     ----------
     model : str
-        Preset name (``"1R1C"``, ``"2R2C"``, ``"3R2C"``).
+        Preset name (``"1R1C"``, ``"2R2C"``, ``"3R2C"``, ``"4R3C"``).
     parameters : dict
         Parameter name -> value: the preset's R [K W⁻¹], C [J K⁻¹], solar aperture [m²] and
         share, plus internal gains [W] (``internal_gains_w``, or the day/night pair) and

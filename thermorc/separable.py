@@ -25,6 +25,7 @@ import math
 import numpy as np
 
 from thermorc.errors import NetworkError
+from thermorc.network import PRESETS
 from thermorc.simulate import sensed_temperature
 
 __all__ = ["ResponseBasis", "preset_matrices", "symmetric_modes"]
@@ -36,7 +37,7 @@ def preset_matrices(model, rc):
 
     Parameters
     ----------
-    model : {'1R1C', '2R2C', '3R2C'}
+    model : {'1R1C', '2R2C', '3R2C', '4R3C'}
         Preset name.
     rc : sequence of float
         Its resistances [K W⁻¹] and capacitances [J K⁻¹] in the order of
@@ -67,6 +68,11 @@ def preset_matrices(model, rc):
     elif model == "3R2C":
         r_ie, r_eo, r_io, c_i, c_e = rc
         g_io = 1.0 / r_io
+    elif model == "4R3C":
+        r_ie, r_eo, r_io, r_im, c_i, c_e, c_m = rc
+        g_ie, g_eo, g_io, g_im = 1.0 / r_ie, 1.0 / r_eo, 1.0 / r_io, 1.0 / r_im
+        k = np.array([[g_ie + g_io + g_im, -g_ie, -g_im], [-g_ie, g_ie + g_eo, 0.0], [-g_im, 0.0, g_im]])
+        return k, np.array([g_io, g_eo, 0.0]), np.array([c_i, c_e, c_m])
     else:
         raise NetworkError(f"no separable form for model '{model}'")
     g_ie, g_eo = 1.0 / r_ie, 1.0 / r_eo
@@ -80,7 +86,7 @@ class ResponseBasis:
 
     Parameters
     ----------
-    model : {'1R1C', '2R2C', '3R2C'}
+    model : {'1R1C', '2R2C', '3R2C', '4R3C'}
         Preset name.
     data : thermorc.estimate.CalibrationData
         Inputs ``u`` (outdoor, heating, irradiance, logged gains), measured ``y`` and segments.
@@ -94,9 +100,9 @@ class ResponseBasis:
 
     Notes
     -----
-    Linear parameters, in order: aperture onto the indoor node and onto the envelope node
-    [m²] (when irradiance is given; the envelope one for two-node presets only), the gains
-    level(s) [W], then the hidden node's initial temperature per segment [°C]. The measured
+    Linear parameters, in order: aperture onto the indoor node, then onto each node the preset
+    has a solar share for [m²] (when irradiance is given), the gains level(s) [W], then the hidden nodes' initial temperatures,
+    segment by segment and within a segment in node order [°C]. The measured
     indoor temperature starts the indoor node; the outdoor temperature is held linearly
     between samples, the powers as interval means, as in :func:`thermorc.simulate.run_modes`.
     With :attr:`sensor_s` above zero every response is read through the sensor's lag
@@ -105,12 +111,16 @@ class ResponseBasis:
 
     def __init__(self, model, data, periods, block_id, n_blocks):
         self.model = model
-        self.n_states = 1 if model == "1R1C" else 2
+        nodes = [name[len("c_"):-len("_j_per_k")] for name in PRESETS[model].parameters if name.startswith("c_")]
+        self.n_states = len(nodes)
+        # Nodes the sun heats: indoor, then one per solar share of the preset, in its order.
+        shares = [name[len("solar_to_"):-len("_share")] for name in PRESETS[model].optional if name.startswith("solar_to_")]
+        self._solar_nodes = np.array([0] + [nodes.index(node) for node in shares], dtype=np.int64)
         self.data = data
         self.step_s = float(data.step_s)
         self.has_solar = bool(data.has_solar)
         self.n_channels = 1 if self.has_solar else 0  # irradiance sequences (one column of u)
-        self.n_solar = self.n_channels * self.n_states
+        self.n_solar = self.n_channels * len(self._solar_nodes)
         # Gains periods: (row labels, number of periods), or None for one constant level.
         self.periods = periods
         self.n_gains = 1 if periods is None else int(periods[1])
@@ -195,11 +205,13 @@ class ResponseBasis:
     def _run(self, rc, block_id, row_weight, n_blocks, owner=None):
         k, g_out, caps = preset_matrices(self.model, rc)
         out = np.zeros((n_blocks, 1 + self.n_linear))
-        acc = np.zeros((n_blocks, self.n_states, self._n_unit + 2))
+        m = self.n_states
+        acc = np.zeros((n_blocks, m, self._n_unit + 1 + max(m - 1, 1)))
+        rates, v = (np.zeros(m), np.eye(m)) if m <= 2 else symmetric_modes(_scaled(k, caps))
         status = _columns_kernel(
-            k, g_out, caps, self.step_s, self._seg_start, self._seg_stop, self._y0, self._outdoor, self._d_outdoor,
-            self._seqs, block_id, row_weight, self._owner if owner is None else owner, self.n_channels, self.n_gains,
-            acc, out,
+            k, g_out, caps, rates, v, self.step_s, self._seg_start, self._seg_stop, self._y0, self._outdoor, self._d_outdoor,
+            self._seqs, block_id, row_weight, self._owner if owner is None else owner, self.n_channels,
+            self._solar_nodes, self.n_gains, acc, out,
         )
         if status:
             raise NetworkError("the network has a mode that does not decay")
@@ -335,17 +347,22 @@ def _phi12(x):
     return -em1 / x, (x + em1) / (x * x)
 
 
-def _columns_loop(k, g_out, caps, dt, seg_start, seg_stop, y0, outdoor, d_outdoor, seqs, block_id, row_weight,
-                  owner, n_channels, n_gains, acc, out):
+def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop, y0, outdoor, d_outdoor, seqs, block_id, row_weight,
+                  owner, n_channels, solar_nodes, n_gains, acc, out):
     """Modes of the preset, every modal recursion summed into blocks, then the columns.
 
-    Returns 0, or 1 when a mode does not decay.
+    One and two nodes find their modes here in closed form; more nodes take theirs from
+    ``rates_given`` and ``v_given`` (:func:`symmetric_modes`). Returns 0, or 1 when a mode does
+    not decay.
     """
     m = caps.size
     root = np.sqrt(caps)
     v = np.eye(m)
     rates = np.empty(m)
-    if m == 1:
+    if m > 2:
+        rates[:] = rates_given
+        v[:, :] = v_given
+    elif m == 1:
         rates[0] = k[0, 0] / caps[0]
     else:
         # Closed form of the symmetric 2x2 eigenproblem of C^-1/2 K C^-1/2 (symmetric_modes).
@@ -388,21 +405,23 @@ def _columns_loop(k, g_out, caps, dt, seg_start, seg_stop, y0, outdoor, d_outdoo
         c_power[j] = dt * phi1 * beta_node[j, 0]
         c_unit[j] = dt * phi1
     n_unit = seqs.shape[0] - 1
-    last = n_unit + 1
-    z = np.zeros((m, n_unit + 2))
+    first_hidden = n_unit + 1
+    width = acc.shape[2]
+    z = np.zeros((m, width))
     for seg in range(seg_start.size):
         for j in range(m):
-            for s in range(n_unit + 2):
+            for s in range(width):
                 z[j, s] = 0.0
             z[j, 0] = w_inv[j, 0] * y0[seg]
-            z[j, last] = w_inv[j, m - 1]
+            for node in range(1, m):
+                z[j, first_hidden + node - 1] = w_inv[j, node]
         stop = seg_stop[seg]
         for row in range(seg_start[seg], stop):
             b = block_id[row]
             if b >= 0:
                 w = row_weight[row]
                 for j in range(m):
-                    for s in range(n_unit + 2):
+                    for s in range(width):
                         acc[b, j, s] += w * z[j, s]
             if row == stop - 1:
                 break
@@ -412,29 +431,33 @@ def _columns_loop(k, g_out, caps, dt, seg_start, seg_stop, y0, outdoor, d_outdoo
                 cu = c_unit[j]
                 for s in range(n_unit):
                     z[j, 1 + s] = aj * z[j, 1 + s] + cu * seqs[1 + s, row]
-                z[j, last] = aj * z[j, last]
-    n_solar = n_channels * m
+                for s in range(first_hidden, width):
+                    z[j, s] = aj * z[j, s]
+    n_sun = solar_nodes.size
+    n_solar = n_channels * n_sun
     for b in range(acc.shape[0]):
         total = 0.0
         for j in range(m):
             total += w0[j] * acc[b, j, 0]
         out[b, 0] = total
         for ch in range(n_channels):
-            for node in range(m):
+            for i in range(n_sun):
+                node = solar_nodes[i]
                 total = 0.0
                 for j in range(m):
                     total += w0[j] * beta_node[j, node] * acc[b, j, 1 + ch]
-                out[b, 1 + ch * m + node] = total
+                out[b, 1 + ch * n_sun + i] = total
         for g in range(n_gains):
             total = 0.0
             for j in range(m):
                 total += w0[j] * beta_node[j, 0] * acc[b, j, 1 + n_channels + g]
             out[b, 1 + n_solar + g] = total
         if m > 1 and owner[b] >= 0:
-            total = 0.0
-            for j in range(m):
-                total += w0[j] * acc[b, j, last]
-            out[b, 1 + n_solar + n_gains + owner[b]] = total
+            for node in range(1, m):
+                total = 0.0
+                for j in range(m):
+                    total += w0[j] * acc[b, j, first_hidden + node - 1]
+                out[b, 1 + n_solar + n_gains + owner[b] * (m - 1) + node - 1] = total
     return 0
 
 
@@ -447,14 +470,21 @@ except ImportError:  # pragma: no cover - numba is a declared dependency
     _columns_kernel = _columns_loop
 
 
+def _scaled(k, caps):
+    """:math:`C^{-1/2} K C^{-1/2}`, the symmetric form of :math:`C^{-1} K`. [s⁻¹]"""
+    root = np.sqrt(caps)
+    return k / np.outer(root, root)
+
+
 def symmetric_modes(s):
     """
-    Eigenvalues (ascending) and orthonormal eigenvectors of a 1x1 or 2x2 symmetric matrix.
+    Eigenvalues (ascending) and orthonormal eigenvectors of a symmetric matrix.
 
     Parameters
     ----------
-    s : numpy.ndarray, shape (1, 1) or (2, 2)
-        :math:`C^{-1/2} K C^{-1/2}` of a preset. [s⁻¹]
+    s : numpy.ndarray, shape (n, n)
+        :math:`C^{-1/2} K C^{-1/2}` of a preset. [s⁻¹] One and two nodes are solved in closed
+        form, more by :func:`numpy.linalg.eigh`.
 
     Returns
     -------
@@ -470,6 +500,8 @@ def symmetric_modes(s):
     """
     if s.shape[0] == 1:
         rates, v = s[0], np.ones((1, 1))
+    elif s.shape[0] > 2:
+        rates, v = np.linalg.eigh(s)
     else:
         # Closed form of the symmetric 2x2 eigenproblem (numpy.linalg.eigh in the tests).
         p, q, r = s[0, 0], s[0, 1], s[1, 1]

@@ -123,13 +123,20 @@ def main(argv=None):
     parser.add_argument("--fit-step", help="fit on the log put on this coarser grid, e.g. 1h")
     parser.add_argument("--homes", help="comma-separated subset of the homes")
     parser.add_argument("--csv", help="append the rows to this CSV")
+    parser.add_argument("--models", help="comma-separated candidates of auto (default: estimate.MODEL_ORDER)")
     args = parser.parse_args(argv)
     variants = set(filter(None, args.variant.split(",")))
     i, n = (int(v) for v in args.part.split("/"))
     rows = []
     chosen = [c for c in cases(args.kind) if not args.homes or c[0] in args.homes.split(",")]
+    fit = None
+    if args.models:
+        models = tuple(args.models.split(","))
+
+        def fit(data, gains):
+            return estimate.calibrate_auto(data, gains=gains, models=models)
     for case in chosen[i::n]:
-        row = run_case(*case, variants=variants, gains=args.gains, fit_step=args.fit_step)
+        row = run_case(*case, variants=variants, gains=args.gains, fit=fit, fit_step=args.fit_step)
         rows.append(row)
         print(" ".join(f"{v:.3f}" if isinstance(v, float) else str(v) for v in row.values()), flush=True)
     if args.csv:

@@ -23,6 +23,7 @@ class ModelOrder(str, enum.Enum):
     r1c1 = "1R1C"
     r2c2 = "2R2C"
     r3c2 = "3R2C"
+    r4c3 = "4R3C"
 
 
 @app.command(epilog=EPILOG)
