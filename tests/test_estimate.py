@@ -287,6 +287,42 @@ def test_auto_passes_over_a_slow_mode_the_indoor_air_hardly_shows():
     assert estimate._choose_model(table) == "4R3C"
 
 
+def test_prediction_error_recovers_the_simulating_2r2c_and_its_noise():
+    # Simulate-and-fit: the log comes from a known 2R2C with process and measurement noise
+    # (exact discretisation and Van Loan's noise integral, themselves checked in
+    # test_kalman.py), so the maximum-likelihood fit must find its UA inside a finite
+    # interval, and the measurement noise it was made with.
+    log, net, _ = stochastic_log(seed=11, days=21)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        res = estimate.calibrate(log, model="2R2C", method="prediction_error", energy_metrics=False)
+    true_ua = net.heat_loss_coefficient_w_per_k()["total"]
+    lo, hi = res.intervals["heat_loss_coefficient_w_per_k"]
+    assert np.isfinite(lo) and lo < true_ua < hi
+    assert res.heat_loss_coefficient_w_per_k == pytest.approx(true_ua, rel=0.05)
+    noise = res.extras["estimator"]["noise"]
+    assert noise["measurement_noise_k"] == pytest.approx(0.05, rel=0.2)
+
+
+def test_profiled_covariance_is_the_block_of_the_inverse():
+    # Block inversion (Schur complement; e.g. Golub and Van Loan, Matrix Computations, 4th ed.,
+    # sec. 3.2, from memory): the kept block of H^-1 is (H_pp - H_pn H_nn^-1 H_np)^-1. Then a
+    # noise parameter the likelihood is flat in must change nothing.
+    rng = np.random.default_rng(2)
+    m = rng.normal(size=(6, 6))
+    hess = m @ m.T + 6 * np.eye(6)
+    keep = np.array([True, True, True, True, False, False])
+    np.testing.assert_allclose(estimate._profiled_covariance(hess, keep), np.linalg.inv(hess)[:4, :4], rtol=1e-10)
+    flat = np.zeros((7, 7))
+    flat[:6, :6] = hess
+    flat[6, 6] = -1e-9  # round-off of a flat direction
+    np.testing.assert_allclose(estimate._profiled_covariance(flat, np.r_[keep, False]), np.linalg.inv(hess)[:4, :4],
+                               rtol=1e-10)
+    singular = hess.copy()
+    singular[0, :] = singular[:, 0] = 0.0
+    assert np.all(np.isnan(estimate._profiled_covariance(singular, keep)))
+
+
 def test_slowest_participation_of_a_fitted_two_node_model():
     # The participation of the 2R2C's slow mode in the indoor step response, against the
     # closed form of the two-node transfer function's partial fractions computed with

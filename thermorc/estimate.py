@@ -1095,19 +1095,73 @@ def _fit_prediction_error(layout: _Layout, theta_start, data: CalibrationData, m
     # The objective is scaled by the sample count so the optimiser's tolerances mean the same
     # for a week or a year of data.
     scale = max(data.n_observed, 1)
+    options = {"maxiter": max_iter, "ftol": 1e-12, "gtol": 1e-7}
+    phys = start[:n_phys]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        sol = scipy.optimize.minimize(
-            lambda v: objective(v) / scale, start, method="L-BFGS-B", bounds=bounds,
-            options={"maxiter": max_iter, "ftol": 1e-12, "gtol": 1e-7},
+        # The noise first, with R and C held at the output-error optimum: from noise levels
+        # far from the data's, the joint search's first step goes mostly into R and C, and on
+        # the steep likelihood it can land far from any good fit and stall there.
+        noise = scipy.optimize.minimize(
+            lambda w: objective(np.r_[phys, w]) / scale, start[n_phys:], method="L-BFGS-B",
+            bounds=bounds[n_phys:], options=options,
         )
+        sol = scipy.optimize.minimize(
+            lambda v: objective(v) / scale, np.r_[phys, noise.x], method="L-BFGS-B", bounds=bounds,
+            options=options,
+        )
+    sol.nfev += noise.nfev
+    if not sol.fun <= noise.fun:
+        # The joint search found nothing better: the output-error R and C with their noise.
+        sol.x, sol.fun = np.r_[phys, noise.x], noise.fun
+        sol.success, sol.message = noise.success, f"{noise.message} (the joint search did not improve on it)"
     return sol, objective, bounds
 
 
+def _profiled_covariance(hess, keep):
+    r"""
+    Covariance of some parameters from the Hessian of -ln L, the others profiled out.
+
+    Parameters
+    ----------
+    hess : numpy.ndarray, shape (k, k)
+        Hessian of the negative log-likelihood at its optimum.
+    keep : numpy.ndarray of bool, shape (k,)
+        The parameters wanted (here the physical ones; the rest are noise levels).
+
+    Returns
+    -------
+    numpy.ndarray
+        :math:`(H_{pp} - H_{pn} H_{nn}^{+} H_{np})^{-1}`, the keep-block of :math:`H^{-1}`
+        (block inversion), or NaN where it is not positive definite. [units of the parameters²]
+
+    Notes
+    -----
+    A process noise the data cannot see (one that stays far below the others) leaves a flat
+    direction of the likelihood that finite differences can turn slightly negative. It tells
+    nothing about R and C, so it is dropped from :math:`H_{nn}` (pseudo-inverse on its positive
+    eigenvalues above :math:`10^{-6}` of the largest) rather than spoiling every interval.
+    """
+    hpp = hess[np.ix_(keep, keep)]
+    hpn = hess[np.ix_(keep, ~keep)]
+    hnn = hess[np.ix_(~keep, ~keep)]
+    if hnn.size:
+        lam, vec = np.linalg.eigh(hnn)
+        ok = lam > 1e-6 * max(lam.max(), 0.0)
+        hpp = hpp - (hpn @ vec[:, ok]) @ np.diag(1.0 / lam[ok]) @ (hpn @ vec[:, ok]).T
+    try:
+        inv = np.linalg.inv(hpp)
+        if not np.all(np.isfinite(inv)) or np.any(np.diag(inv) < 0):
+            raise np.linalg.LinAlgError
+    except np.linalg.LinAlgError:
+        inv = np.full(hpp.shape, np.nan)
+    return inv
+
+
 def _hessian(func, x, step=1e-4):
-    """Central-difference Hessian of a scalar function."""
+    """Central-difference Hessian of a scalar function (``step``: one for all, or one each)."""
     k = len(x)
-    h = np.full(k, step)
+    h = np.broadcast_to(np.asarray(step, dtype=float), (k,))
     hess = np.empty((k, k))
     f0 = func(x)
     for i in range(k):
@@ -1456,15 +1510,14 @@ def calibrate(
             full[free] = v
             return objective(full)
 
-        hess = _hessian(restricted, ml.x[free])
-        try:
-            inv = np.linalg.inv(hess)
-            if not np.all(np.isfinite(inv)) or np.any(np.diag(inv) < 0):
-                raise np.linalg.LinAlgError
-        except np.linalg.LinAlgError:
-            inv = np.full((free.size, free.size), np.nan)
+        # Steps of 1e-4 in the logs of R, C, aperture and noise; a thousandth of the range of
+        # a share or a gain [W], whose curvature a step of 1e-4 W would leave in round-off.
+        is_log = np.r_[[p.log for p in layout.params[:n_phys]], np.ones(len(ml.x) - n_phys, dtype=bool)]
+        steps = np.where(is_log, 1e-4, 1e-3 * vspan)[free]
+        hess = _hessian(restricted, ml.x[free], steps)
+        phys = free < n_phys
         full_cov = np.full((len(ml.x), len(ml.x)), np.nan)
-        full_cov[np.ix_(free, free)] = inv
+        full_cov[np.ix_(free[phys], free[phys])] = _profiled_covariance(hess, phys)
         cov = np.full((k, k), np.nan)
         cov[:n_phys, :n_phys] = full_cov[:n_phys, :n_phys]
         sub_cov = cov[np.ix_(free[free < n_phys], free[free < n_phys])]

@@ -124,17 +124,18 @@ def main(argv=None):
     parser.add_argument("--homes", help="comma-separated subset of the homes")
     parser.add_argument("--csv", help="append the rows to this CSV")
     parser.add_argument("--models", help="comma-separated candidates of auto (default: estimate.MODEL_ORDER)")
+    parser.add_argument("--estimator", default="output_error", choices=("output_error", "prediction_error"))
     args = parser.parse_args(argv)
     variants = set(filter(None, args.variant.split(",")))
     i, n = (int(v) for v in args.part.split("/"))
     rows = []
     chosen = [c for c in cases(args.kind) if not args.homes or c[0] in args.homes.split(",")]
     fit = None
-    if args.models:
-        models = tuple(args.models.split(","))
+    if args.models or args.estimator != "output_error":
+        models = tuple(args.models.split(",")) if args.models else estimate.MODEL_ORDER
 
         def fit(data, gains):
-            return estimate.calibrate_auto(data, gains=gains, models=models)
+            return estimate.calibrate_auto(data, gains=gains, models=models, method=args.estimator)
     for case in chosen[i::n]:
         row = run_case(*case, variants=variants, gains=args.gains, fit=fit, fit_step=args.fit_step)
         rows.append(row)
