@@ -247,13 +247,16 @@ def test_data_that_cannot_identify_a_model_is_refused():
         estimate.calibrate(short, model="3R2C")
 
 
-def test_auto_compares_the_three_presets_and_keeps_the_table():
+def test_auto_compares_the_presets_and_keeps_the_table():
     log, net, _ = stochastic_log(seed=2, days=21)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ThermorcWarning)
         res = estimate.calibrate_auto(log)
-    table = res.extras["model_comparison"]["rows"]
-    assert [row["model"] for row in table] == ["1R1C", "2R2C", "3R2C"]
+    rows = res.extras["model_comparison"]["rows"]
+    assert [row["model"] for row in rows] == ["1R1C", "2R2C", "3R2C", "4R3C"]
+    # 16.8 training days are under 4R3C's 21: skipped, with the reason.
+    assert "needs at least 21" in rows[3]["skipped"]
+    table = rows[:3]
     # The data come from a 2R2C: 1R1C must predict the held-out tail clearly worse.
     by_model = {row["model"]: row for row in table}
     assert by_model["1R1C"]["holdout_rmse_k"] > 1.5 * by_model["2R2C"]["holdout_rmse_k"]
@@ -284,6 +287,15 @@ def test_auto_passes_over_a_slow_mode_the_indoor_air_hardly_shows():
              {"model": "4R3C", "holdout_rmse_k": 0.20, "slowest_mode_in_record": True, "slowest_mode_participation": 0.07}]
     assert estimate._choose_model(table) == "3R2C"
     table[1]["slowest_mode_participation"] = 0.5
+    assert estimate._choose_model(table) == "4R3C"
+    # Its slowest time constant's 95 % interval 3-331,000 h around 900 h (an anchored fit):
+    # wider than the value, so passed over; no interval at all counts the same.
+    table[1]["slowest_mode_interval_ratio"] = estimate._interval_ratio(900.0, [3.0, 331000.0])
+    assert estimate._choose_model(table) == "3R2C"
+    table[1]["slowest_mode_interval_ratio"] = estimate._interval_ratio(900.0, [float("nan")] * 2)
+    assert estimate._choose_model(table) == "3R2C"
+    table[1]["slowest_mode_interval_ratio"] = estimate._interval_ratio(280.0, [192.0, 370.0])
+    assert table[1]["slowest_mode_interval_ratio"] == pytest.approx(178 / 280)
     assert estimate._choose_model(table) == "4R3C"
 
 

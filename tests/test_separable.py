@@ -164,7 +164,7 @@ def test_three_node_modes_rebuild_the_matrix():
 def test_holdout_from_the_responses_equals_predict(model, gains):
     # The held-out score continues the training simulation; thermorc.estimate.predict (a plain
     # run of the network through thermorc.simulate) must give the same RMSE.
-    log, _, _ = stochastic_log(seed=5, days=20 if model == "4R3C" else 10, step_s=900.0)  # 4R3C needs 14 days
+    log, _, _ = stochastic_log(seed=5, days=28 if model == "4R3C" else 10, step_s=900.0)  # 4R3C needs 21 days
     data = estimate.calibration_data(log)
     cut = int(len(data.y) * 0.8)
     train = data.subset(cut)

@@ -438,7 +438,7 @@ def calibrate_files(
         Construction TOML (docs/constructions.md): the result reports how the calibrated UA
         and capacity compare with it, and its windows weight the façades of the solar input.
     model : {'1R1C', '2R2C', '3R2C', '4R3C', 'auto'}
-        Preset, or ``auto`` to compare all three.
+        Preset, or ``auto`` to compare the presets of ``estimate.MODEL_ORDER``.
     gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     step_s : float, optional

@@ -135,7 +135,9 @@ def run_demo(out_dir, log=print, progress=None, root=None, model="auto"):
     def calibrate():
         from thermorc.chain import calibrate_files
 
-        progress(f"calibrating ({model}: comparing 1R1C, 2R2C and 3R2C)" if model == "auto" else "calibrating")
+        from thermorc.estimate import MODEL_ORDER
+
+        progress(f"calibrating ({model}: comparing {', '.join(MODEL_ORDER)})" if model == "auto" else "calibrating")
         res = calibrate_files(paths["log"], tz=tz, weather=paths["weather"], construction=paths["construction"],
                               model=model)
         write_json(out / "RESULT.json", res.to_dict())

@@ -74,7 +74,7 @@ __all__ = [
     "predict",
 ]
 
-MODEL_ORDER = ("1R1C", "2R2C", "3R2C")
+MODEL_ORDER = ("1R1C", "2R2C", "3R2C", "4R3C")
 Z95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
 
 # Physical search bounds, wide enough for any dwelling (common practice; from memory:
@@ -628,16 +628,6 @@ def _periods(index, schedule):
     return gains_period_labels(index, schedule), len(gains_periods(schedule)[1])
 
 
-def _solar_shares(model):
-    """Names of a preset's solar shares, one per capacitive node after the indoor one."""
-    return [name for name in PRESETS[model].optional if name.startswith("solar_to_")]
-
-
-def _preset_nodes(model):
-    """Capacitive nodes of a preset, indoor first, from its capacitance names."""
-    return tuple(name[len("c_"):-len("_j_per_k")] for name in PRESETS[model].parameters if name.startswith("c_"))
-
-
 def _solar_onto_nodes(aperture_m2, shares, n_solar):
     """Aperture onto the indoor node, then onto each further node (the shares of it). [m²]"""
     shares = [float(x) for x in shares][: max(n_solar - 1, 0)]
@@ -658,7 +648,7 @@ class _Layout:
         if data.has_solar:
             self.params.append(_Param("solar_aperture_m2", True, *APERTURE_BOUNDS_M2, start["solar_aperture_m2"]))
             # Sun lands on floors and furniture as much as on the air: let the data split it.
-            for name in _solar_shares(model):
+            for name in PRESETS[model].solar_shares:
                 self.params.append(_Param(name, False, 0.0, 1.0, start.get(name, 0.2)))
         self.gains_names = gains_periods(gains_schedule(gains))[1]
         for name in self.gains_names:
@@ -677,7 +667,7 @@ class _Layout:
         self.periods = _periods(data.index, gains_schedule(gains))
 
     def _states(self):
-        return _preset_nodes(self.model)
+        return PRESETS[self.model].nodes
 
     @property
     def names(self):
@@ -705,7 +695,7 @@ class _Layout:
         v = self.values(theta)
         p = {k: v[k] for k in PRESETS[self.model].parameters}
         p["solar_aperture_m2"] = v.get("solar_aperture_m2", 0.0)
-        p.update({name: v[name] for name in _solar_shares(self.model) if name in v})
+        p.update({name: v[name] for name in PRESETS[self.model].solar_shares if name in v})
         return Network.from_preset(self.model, p)
 
     def gains_series(self, theta, rows=slice(None)):
@@ -834,6 +824,11 @@ def _blocks(data, observed, block):
 #: thermorc.synthetic.RELEVANT_PARTICIPATION); ``auto`` passes over candidates under it and a
 #: calibration under it warns. [unitless]
 MIN_SLOW_PARTICIPATION = 0.10
+
+
+#: Widest 95 % interval of the slowest time constant, over its value, that ``auto`` accepts in
+#: a candidate (wider, and calibrate warns that the data do not determine it). [unitless]
+MAX_SLOW_INTERVAL_RATIO = 1.0
 
 
 def _slowest_participation(network):
@@ -991,7 +986,7 @@ def _full_solution(layout, basis, theta_rc, prior_residual, prior):
     # Linear coefficients as the layout's values imply them (the clipping above included).
     values = layout.values(theta)
     a_total = values.get("solar_aperture_m2", 0.0)
-    shares = [values.get(name, 0.0) for name in _solar_shares(model)]
+    shares = [values.get(name, 0.0) for name in PRESETS[model].solar_shares]
     lin_coef = np.array(_solar_onto_nodes(a_total, shares, n_solar) + list(theta[pos:]))
     residual = basis.y_blocks - (fixed + linear @ lin_coef)
     jac = np.zeros((residual.size, len(theta)))
@@ -1457,15 +1452,9 @@ def calibrate(
     span = upper - lower
     notes = []
     noise = {}
-    if _screen:
-        # A candidate of calibrate_auto is judged on its held-out RMSE only.
-        cov = np.full((k, k), np.nan)
-        sub_cov = cov
-        cov_note = "not computed (candidate of the model comparison)"
-        if prior_info:
-            prior_info.pop("_data_cov")
-        success, message, nfev = bool(sol.success), str(sol.message), int(sol.nfev)
-    elif method == "output_error":
+    if method == "output_error" or _screen:
+        # Candidates of calibrate_auto too: whether their slowest mode is determined is part
+        # of the comparison.
         # A parameter pinned at a bound is not estimated: leave it out of the covariance (its
         # Jacobian column would make the information matrix singular) and say so.
         at_bound = (theta - lower < 1e-6 * span) | (upper - theta < 1e-6 * span)
@@ -1593,7 +1582,7 @@ def calibrate(
                 f"The slowest time constant ({slow_h:.0f} h) is longer than the record ({record_h:.0f} h): the data "
                 "do not determine it (a lower limit at best). Use a longer log, or one with night setbacks or "
                 "periods with the heating off.")
-        slow_share = _slowest_participation(layout.network(theta))
+        slow_share = _slowest_participation(net)
         if layout.model != "1R1C" and slow_share < MIN_SLOW_PARTICIPATION:
             # A slow mode the indoor air hardly shows can drift to any length at little cost
             # in fit, and it still carries part of UA.
@@ -1653,7 +1642,7 @@ def calibrate(
     physical_full = dict(physical)
     physical_full.setdefault("solar_aperture_m2", 0.0)
     physical_full[SENSOR_PARAMETER] = sensor["time_constant_s"]
-    for name in _solar_shares(model):
+    for name in PRESETS[model].solar_shares:
         physical_full.setdefault(name, 0.0)
     log_names = [p.name for p in layout.params[: layout.n_physical] if p.log]
     idx = [i for i, p in enumerate(layout.params[: layout.n_physical]) if p.log]
@@ -1878,7 +1867,8 @@ def _check_identifiable(data: CalibrationData, model, path):
     y = data.y[inside]
     heat = data.u[inside, 1]
     days = len(inside) * data.step_s / 86400
-    need_days = {"1R1C": 2.0, "2R2C": 5.0, "3R2C": 7.0, "4R3C": 14.0}[model]
+    # 4R3C as quality.REQUIREMENTS has it: its interior mode runs to 200-300 h.
+    need_days = {"1R1C": 2.0, "2R2C": 5.0, "3R2C": 7.0, "4R3C": 21.0}[model]
     if days < need_days:
         raise InputError(
             f"only {days:.1f} days of complete data; model {model} needs at least {need_days:g} days "
@@ -2201,6 +2191,9 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
             # Less than one e-fold of the slowest mode in the record: the data do not fix it.
             "slowest_mode_in_record": bool(res.time_constants_h[0] <= record_h),
             "slowest_mode_participation": _slowest_participation(res.network()),
+            # The 95 % interval's width over the value (the test of diagnose.interval_warnings).
+            "slowest_mode_interval_ratio": _interval_ratio(res.time_constants_h[0],
+                                                           res.intervals.get("time_constant_1_h")),
         })
     usable = [r for r in rows if "skipped" not in r]
     if not usable:
@@ -2227,10 +2220,18 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         "rows": rows,
         "holdout_fraction": holdout_fraction,
         "rule": "simplest model within 5 % (or 0.02 K) of the best held-out open-loop RMSE, among those whose "
-                "slowest time constant is within the training record",
+                "slowest time constant is within the training record, carries at least 10 % of the indoor "
+                "temperature's step response to heating and has a 95 % interval no wider than its value",
         "chosen": chosen,
     }
     return final
+
+
+def _interval_ratio(value, interval):
+    """Width of an interval over its value; infinite when there is none. [unitless]"""
+    lo, hi = interval if interval is not None else (math.nan, math.nan)
+    width = float(hi) - float(lo)
+    return width / value if math.isfinite(width) and value > 0 else math.inf
 
 
 def _choose_model(rows):
@@ -2240,19 +2241,23 @@ def _choose_model(rows):
     Parameters
     ----------
     rows : list of dict
-        With ``model``, ``holdout_rmse_k`` [K] and ``slowest_mode_in_record`` (bool).
+        With ``model``, ``holdout_rmse_k`` [K] and ``slowest_mode_in_record`` (bool); optionally
+        ``slowest_mode_participation`` and ``slowest_mode_interval_ratio`` [unitless].
 
     Returns
     -------
     str
         The simplest model within 5 % (or 0.02 K) of the best held-out RMSE, among those
-        whose slowest mode is within the record (all of them when none is).
+        whose slowest mode is within the record, carries at least
+        :data:`MIN_SLOW_PARTICIPATION` of the indoor step response and has a 95 % interval no
+        wider than :data:`MAX_SLOW_INTERVAL_RATIO` times its value (all of them when none is).
     """
-    # A model whose slowest mode the record does not hold, or the indoor temperature hardly
-    # shows, is not adequate, however well it predicts the tail: that mode is not determined
+    # A model whose slowest mode the record does not hold, the indoor temperature hardly
+    # shows, or the fit cannot bound, is not adequate, however well it predicts the tail: that mode is not determined
     # by the log, yet it sets UA and the reported time constant.
     adequate = [r for r in rows if r["slowest_mode_in_record"]
-                and not r.get("slowest_mode_participation", 1.0) < MIN_SLOW_PARTICIPATION] or rows
+                and not r.get("slowest_mode_participation", 1.0) < MIN_SLOW_PARTICIPATION
+                and not r.get("slowest_mode_interval_ratio", 0.0) > MAX_SLOW_INTERVAL_RATIO] or rows
     scores = [r["holdout_rmse_k"] for r in adequate if math.isfinite(r["holdout_rmse_k"])]
     best = min(scores) if scores else math.nan
     for r in adequate:
@@ -2275,11 +2280,11 @@ def _holdout_rmse(result, data: CalibrationData, cut, train: CalibrationData):
         model = result.model
         basis = ResponseBasis(model, data, _periods(data.index, result.gains_schedule), np.full(len(data.y), -1), 0)
         rows = basis.rows([p[name] for name in PRESETS[model].parameters])
-        coef = _solar_onto_nodes(p["solar_aperture_m2"], [p.get(name, 0.0) for name in _solar_shares(model)],
+        coef = _solar_onto_nodes(p["solar_aperture_m2"], [p.get(name, 0.0) for name in PRESETS[model].solar_shares],
                                  basis.n_solar)
         coef += [p[name] for name in gains_periods(result.gains_schedule)[1]]
         states = result.extras["estimator"]["initial_states"]
-        coef += [states[f"x0_{node}_segment{k}"] for k in range(len(data.segments)) for node in _preset_nodes(model)[1:]]
+        coef += [states[f"x0_{node}_segment{k}"] for k in range(len(data.segments)) for node in PRESETS[model].nodes[1:]]
         pred = _sensed(rows[:, 0] + rows[:, 1:] @ np.array(coef), data.segments, data.step_s,
                        float(p.get(SENSOR_PARAMETER, 0.0)))
         inside = np.zeros(len(data.y), dtype=bool)

@@ -645,7 +645,7 @@ def calibrate_home(home, model="auto", gains="constant", test_days=None):
     home : HomeSpec or dict
         The home (a dict is passed to :class:`HomeSpec`).
     model : {'1R1C', '2R2C', '3R2C', '4R3C', 'auto'}
-        Model to fit, or ``auto`` to compare all three.
+        Model to fit, or ``auto`` to compare the presets of ``estimate.MODEL_ORDER``.
     gains : {'constant', 'day_night', 'four_period'}
         Model of unlogged internal gains.
     test_days : float, optional

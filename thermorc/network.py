@@ -627,6 +627,16 @@ class Preset:
     description: str
     optional: dict = field(default_factory=dict)
 
+    @property
+    def nodes(self):
+        """Capacitive nodes, indoor first, from the capacitance names (``c_<node>_j_per_k``)."""
+        return tuple(n[len("c_"):-len("_j_per_k")] for n in self.parameters if n.startswith("c_"))
+
+    @property
+    def solar_shares(self):
+        """Names of the shares of the sun on nodes other than indoor (``solar_to_<node>_share``)."""
+        return tuple(n for n in self.optional if n.startswith("solar_to_"))
+
     def build(self, values):
         """Check ``values`` against the parameter list and build the network."""
         missing = [p for p in self.parameters if p not in values]

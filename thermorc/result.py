@@ -544,8 +544,10 @@ class CalibrationResult:
                 return ""
             return f"  (95 % interval {fmt.format(lo * scale)} to {fmt.format(hi * scale)})"
 
-        chosen = self.extras.get("model_comparison", {}).get("chosen")
-        lines = [f"model                   {self.model}" + ("  (chosen by comparing 1R1C, 2R2C, 3R2C)" if chosen else "")]
+        comparison = self.extras.get("model_comparison", {})
+        compared = ", ".join(r["model"] for r in comparison.get("rows", []))
+        lines = [f"model                   {self.model}" + (f"  (chosen by comparing {compared})"
+                                                           if comparison.get("chosen") else "")]
         lines.append(
             f"heat loss coefficient   {self.heat_loss_coefficient_w_per_k:.1f} W/K"
             + interval("heat_loss_coefficient_w_per_k")

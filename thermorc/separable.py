@@ -111,11 +111,11 @@ class ResponseBasis:
 
     def __init__(self, model, data, periods, block_id, n_blocks):
         self.model = model
-        nodes = [name[len("c_"):-len("_j_per_k")] for name in PRESETS[model].parameters if name.startswith("c_")]
+        nodes = PRESETS[model].nodes
         self.n_states = len(nodes)
         # Nodes the sun heats: indoor, then one per solar share of the preset, in its order.
-        shares = [name[len("solar_to_"):-len("_share")] for name in PRESETS[model].optional if name.startswith("solar_to_")]
-        self._solar_nodes = np.array([0] + [nodes.index(node) for node in shares], dtype=np.int64)
+        self._solar_nodes = np.array([0] + [nodes.index(name[len("solar_to_"):-len("_share")])
+                                            for name in PRESETS[model].solar_shares], dtype=np.int64)
         self.data = data
         self.step_s = float(data.step_s)
         self.has_solar = bool(data.has_solar)

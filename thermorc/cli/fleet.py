@@ -58,7 +58,7 @@ def fleet(
     out: Annotated[Path, typer.Option("--out", help="RESULTS.parquet to write (one row per home); an existing one is resumed.", dir_okay=False, rich_help_panel="Output")],
     workers: Annotated[Optional[int], typer.Option("--workers", min=1, help="Processes of the local pool; default: the number of CPUs.", rich_help_panel="Inputs")] = None,
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running Dask distributed scheduler, e.g. tcp://10.0.0.5:8786.", rich_help_panel="Inputs")] = None,
-    model: Annotated[ModelChoice, typer.Option("--model", help="RC model for every home, or auto to compare all three.", rich_help_panel="Model")] = ModelChoice.auto,
+    model: Annotated[ModelChoice, typer.Option("--model", help="RC model for every home, or auto to compare the presets (see calibrate --help).", rich_help_panel="Model")] = ModelChoice.auto,
     gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant; a day (07-23 h) and a night value; or four periods (06-09, 09-17, 17-23, 23-06 h).", rich_help_panel="Model")] = GainsChoice.constant,
     gains_hours: Annotated[Optional[str], typer.Option("--gains-hours", help=GAINS_HOURS_HELP, rich_help_panel="Model")] = None,
     test_days: Annotated[Optional[float], typer.Option("--test-days", help="Keep each log's last days back and report how each home's model predicts them (test_* columns).", rich_help_panel="Model")] = None,
