@@ -74,7 +74,7 @@ __all__ = [
     "predict",
 ]
 
-MODEL_ORDER = ("1R1C", "2R2C", "3R2C", "4R3C")
+MODEL_ORDER = ("1R1C", "2R2C", "3R2C")
 Z95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
 
 # Physical search bounds, wide enough for any dwelling (common practice; from memory:

@@ -52,7 +52,7 @@ def calibrate(
     window_areas: Annotated[Optional[str], typer.Option("--window-areas", help="Window area per façade \\[m²], e.g. S=8,E=3,W=3,N=4: weights the sun on each façade (default: all alike, or the construction's windows).", rich_help_panel="Inputs")] = None,
     ground_c: Annotated[Optional[float], typer.Option("--ground-c", help="Constant ground temperature under floors on the ground \\[°C]; part of the heat loss then goes to it.", rich_help_panel="Inputs")] = None,
     ground_share: Annotated[Optional[float], typer.Option("--ground-share", help="Share of the heat loss that goes to the ground (0..0.9); default: from the construction's ground_floor elements.", rich_help_panel="Inputs")] = None,
-    model: Annotated[ModelChoice, typer.Option("--model", help="RC model, or auto to compare 1R1C, 2R2C, 3R2C and 4R3C (interior mass) on held-out days.", rich_help_panel="Model")] = ModelChoice.auto,
+    model: Annotated[ModelChoice, typer.Option("--model", help="RC model, or auto to compare 1R1C, 2R2C and 3R2C on held-out days (4R3C, with interior mass, only when asked for).", rich_help_panel="Model")] = ModelChoice.auto,
     gains: Annotated[GainsChoice, typer.Option("--gains", help="Unlogged internal gains: one constant; a day (07-23 h) and a night value; or four periods (06-09, 09-17, 17-23, 23-06 h).", rich_help_panel="Model")] = GainsChoice.constant,
     gains_hours: Annotated[Optional[str], typer.Option("--gains-hours", help=GAINS_HOURS_HELP, rich_help_panel="Model")] = None,
     estimator: Annotated[EstimatorChoice, typer.Option("--estimator", help="Output error (least squares on the open-loop indoor temperature) or prediction error (Kalman-filter likelihood).", rich_help_panel="Model")] = EstimatorChoice.output_error,
