@@ -45,6 +45,7 @@ import numpy as np
 import pandas as pd
 
 from thermorc.errors import InputError, ThermorcWarning
+from thermorc.network import PRESETS
 
 __all__ = [
     "HomeSpec",
@@ -68,7 +69,7 @@ MANIFEST_COLUMNS = (
     "construction", "ground_c", "ground_share", "window_areas", "gains_hours",
 )
 _PATH_COLUMNS = ("log", "column_map", "weather", "construction")
-_MODELS = ("1R1C", "2R2C", "3R2C", "4R3C", "auto")
+_MODELS = (*PRESETS, "auto")
 
 # Plausible floor areas of one dwelling (common practice: a studio flat has some 20 m2, a
 # large detached house some 1000 m2; the wide span only catches unit and typing errors).

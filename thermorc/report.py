@@ -53,6 +53,7 @@ import numpy as np
 import pandas as pd
 
 from thermorc.errors import InputError
+from thermorc.network import PRESETS
 
 __all__ = [
     "HomeFile",
@@ -96,7 +97,7 @@ _HOME_KEYS = {"name", "floor_area_m2", "log", "weather", "site", "construction",
 _LOG_KEYS = {"file", "column_map", "tz", "interval"}
 _SITE_KEYS = {"name", "latitude", "longitude", "altitude_m", "tz", "file"}
 _MODEL_KEYS = {"preset", "gains", "gains_hours", "step_min", "result"}
-_PRESETS = ("1R1C", "2R2C", "3R2C", "4R3C", "auto")
+_PRESETS = (*PRESETS, "auto")
 
 # Colours of our own: deep teal, ember, slate, sand, moss.
 TEAL, EMBER, SLATE, SAND, MOSS = "#1d6a72", "#d2603a", "#3f4b5c", "#e3b868", "#6b8e4e"

@@ -699,11 +699,9 @@ def relevant_time_constant(network, weights, input_channel=HEATING, min_particip
 
     Parameters
     ----------
-    network : Network
-    weights : array_like, shape (n_nodes,)
-        The output as a weighted sum of node temperatures (one 1 for a single node).
-    input_channel : str
-        The heat input that steps.
+    network, weights, input_channel
+        As :func:`thermorc.network.step_participation`: the network, the output as a weighted
+        sum of node temperatures, and the heat input that steps.
     min_participation : float
         Share of the steady-state rise below which a mode is not relevant; 10 % by default
         (our choice: it drops the ground and deep-layer modes that a month of data cannot
@@ -720,12 +718,10 @@ def relevant_time_constant(network, weights, input_channel=HEATING, min_particip
 
     Notes
     -----
-    In modal coordinates the step response of the output is
-    :math:`y(t) = \sum_j (r_j/\lambda_j)(1 - e^{-\lambda_j t})` with residues
-    :math:`r_j = (c W)_j (W^{-1} b)_j` [1]_. The participation of mode :math:`j` is its share
-    :math:`p_j = (r_j/\lambda_j) / \sum_i r_i/\lambda_i` of the steady rise; modes that the
-    output hardly sees (deep in the ground, say) have a tiny :math:`p_j` however slow they are,
-    and a model fitted to that output cannot see them either.
+    The participation :math:`p_j` of each mode is its share of the output's steady rise, from
+    the residues of the modal decomposition [1]_ (:func:`thermorc.network.step_participation`).
+    Modes that the output hardly sees (deep in the ground, say) have a tiny :math:`p_j` however
+    slow they are, and a model fitted to that output cannot see them either.
 
     References
     ----------
