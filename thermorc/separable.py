@@ -347,6 +347,24 @@ def _phi12(x):
     return -em1 / x, (x + em1) / (x * x)
 
 
+def _recur(z, aj, c0, x0, c1, x1, c2, x2, block_id, row_weight, start, stop, acc, j, col):
+    """One mode's recursion ``z <- aj z + c0 x0 + c1 x1 + c2 x2`` from ``z``, summed into blocks."""
+    cur = -1
+    total = 0.0
+    for row in range(start, stop):
+        b = block_id[row]
+        if b != cur:
+            if cur >= 0:
+                acc[cur, j, col] += total
+            cur = b
+            total = 0.0
+        if b >= 0:
+            total += row_weight[row] * z
+        # The inputs are summed apart from z so that the chain from row to row is one multiply-add.
+        z = aj * z + (c0 * x0[row] + c1 * x1[row] + c2 * x2[row])
+    if cur >= 0:
+        acc[cur, j, col] += total
+
 def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop, y0, outdoor, d_outdoor, seqs, block_id, row_weight,
                   owner, n_channels, solar_nodes, n_gains, acc, out):
     """Modes of the preset, every modal recursion summed into blocks, then the columns.
@@ -406,33 +424,22 @@ def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop,
         c_unit[j] = dt * phi1
     n_unit = seqs.shape[0] - 1
     first_hidden = n_unit + 1
-    width = acc.shape[2]
-    z = np.zeros((m, width))
+    # One scalar recurrence per mode and column, row by row: the state stays in a register and
+    # each block's sum is kept until the block changes, which runs several times faster than
+    # stepping every mode and column together through memory.
     for seg in range(seg_start.size):
-        for j in range(m):
-            for s in range(width):
-                z[j, s] = 0.0
-            z[j, 0] = w_inv[j, 0] * y0[seg]
-            for node in range(1, m):
-                z[j, first_hidden + node - 1] = w_inv[j, node]
+        start = seg_start[seg]
         stop = seg_stop[seg]
-        for row in range(seg_start[seg], stop):
-            b = block_id[row]
-            if b >= 0:
-                w = row_weight[row]
-                for j in range(m):
-                    for s in range(width):
-                        acc[b, j, s] += w * z[j, s]
-            if row == stop - 1:
-                break
-            for j in range(m):
-                aj = a[j]
-                z[j, 0] = aj * z[j, 0] + c_out0[j] * outdoor[row] + c_out1[j] * d_outdoor[row] + c_power[j] * seqs[0, row]
-                cu = c_unit[j]
-                for s in range(n_unit):
-                    z[j, 1 + s] = aj * z[j, 1 + s] + cu * seqs[1 + s, row]
-                for s in range(first_hidden, width):
-                    z[j, s] = aj * z[j, s]
+        for j in range(m):
+            aj = a[j]
+            _recur(w_inv[j, 0] * y0[seg], aj, c_out0[j], outdoor, c_out1[j], d_outdoor, c_power[j], seqs[0],
+                   block_id, row_weight, start, stop, acc, j, 0)
+            for s in range(n_unit):
+                _recur(0.0, aj, c_unit[j], seqs[1 + s], 0.0, outdoor, 0.0, outdoor,
+                       block_id, row_weight, start, stop, acc, j, 1 + s)
+            for node in range(1, m):
+                _recur(w_inv[j, node], aj, 0.0, outdoor, 0.0, outdoor, 0.0, outdoor,
+                       block_id, row_weight, start, stop, acc, j, first_hidden + node - 1)
     n_sun = solar_nodes.size
     n_solar = n_channels * n_sun
     for b in range(acc.shape[0]):
@@ -465,6 +472,7 @@ try:  # numba compiles the loops; the plain Python loops are the same arithmetic
     import numba
 
     _phi12 = numba.njit(cache=True)(_phi12)
+    _recur = numba.njit(cache=True, fastmath={"contract"})(_recur)
     _columns_kernel = numba.njit(cache=True)(_columns_loop)
 except ImportError:  # pragma: no cover - numba is a declared dependency
     _columns_kernel = _columns_loop
