@@ -253,7 +253,10 @@ def test_auto_compares_the_presets_and_keeps_the_table():
         warnings.simplefilter("ignore", ThermorcWarning)
         res = estimate.calibrate_auto(log)
     table = res.extras["model_comparison"]["rows"]
-    assert [row["model"] for row in table] == ["1R1C", "2R2C", "3R2C"]
+    assert [row["model"] for row in table] == ["1R1C", "2R2C", "3R2C", "4R3C"]
+    # The simulating 2R2C's slow mode is 47 h: no slow store, so 4R3C is not tried, and says why.
+    assert "under 100 h" in table[3]["skipped"]
+    table = table[:3]
     # Asked for, 4R3C is skipped with the reason: 16.8 training days are under its 21.
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ThermorcWarning)
@@ -267,6 +270,21 @@ def test_auto_compares_the_presets_and_keeps_the_table():
     record_h = 0.8 * 21 * 24  # the training part, before the held-out fifth
     for row in table:
         assert row["slowest_mode_in_record"] == (row["time_constants_h"][0] <= record_h + 0.5)
+
+
+def test_auto_tries_the_slow_store_model_when_a_candidate_is_slow(monkeypatch):
+    # With the threshold lowered under this home's 47 h, the fourth candidate is fitted and
+    # tested against 3R2C; asked not to, auto leaves it out altogether.
+    log, _, _ = stochastic_log(seed=2, days=28)
+    monkeypatch.setattr(estimate, "SLOW_STORE_TAU_H", 30.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        rows = estimate.calibrate_auto(log).extras["model_comparison"]["rows"]
+        plain = estimate.calibrate_auto(log, slow_store=False).extras["model_comparison"]["rows"]
+    assert [row["model"] for row in rows] == ["1R1C", "2R2C", "3R2C", "4R3C"]
+    assert "skipped" not in rows[3] and rows[3]["lr_test_vs"] == "3R2C"
+    assert rows[3]["n_params"] > rows[2]["n_params"]
+    assert [row["model"] for row in plain] == ["1R1C", "2R2C", "3R2C"]
 
 
 @pytest.mark.parametrize("rows, chosen", [

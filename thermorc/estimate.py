@@ -287,7 +287,7 @@ def _sensed(indoor_c, segments, step_s, time_constant_s):
     return out
 
 
-def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
+def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, start=None):
     """
     Time constant of the indoor sensor's first-order lag, fitted sample by sample.
 
@@ -303,6 +303,9 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
         Natural logarithms of the preset's R and C from the hourly fit (the start).
     max_nfev : int
         Most model runs of the search.
+    start : numpy.ndarray, optional
+        Log R, log C and log lag [log s] to start the search from (a neighbouring problem's
+        ``log_solution``); by default ``theta_rc`` and a lag of two steps.
 
     Returns
     -------
@@ -310,7 +313,8 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
         ``time_constant_s`` [s] (0 when the log's step is over :data:`SENSOR_MAX_STEP_S`
         or the lag found is under a fifth of the step), ``fitted`` (bool), and with a fit
         ``rmse_without_k`` and ``rmse_with_k``: the sample-by-sample RMSE of the indoor
-        temperature of the hourly fit without a lag and of this fit with it. [K]
+        temperature of the hourly fit without a lag and of this fit with it [K], and
+        ``log_solution``: the search's end point, as ``start``.
 
     Notes
     -----
@@ -340,16 +344,19 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80):
         return basis.solve_linear(fixed, linear)[1]
 
     without = float(np.sqrt(np.mean(residual(np.asarray(theta_rc)) ** 2)))
-    start = np.append(np.clip(theta_rc, rc_lo + 1e-9, rc_hi - 1e-9), math.log(2.0 * data.step_s))
+    lo, hi = np.append(rc_lo, tau_lo), np.append(rc_hi, tau_hi)
+    start = np.append(theta_rc, math.log(2.0 * data.step_s)) if start is None else np.asarray(start, dtype=float)
+    start = np.clip(start, lo + 1e-9, hi - 1e-9)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        sol = scipy.optimize.least_squares(residual, start, bounds=(np.append(rc_lo, tau_lo), np.append(rc_hi, tau_hi)),
+        sol = scipy.optimize.least_squares(residual, start, bounds=(lo, hi),
                                            method="trf", x_scale=1.0, diff_step=1e-4, max_nfev=max_nfev, ftol=1e-6)
     tau = math.exp(sol.x[-1])
     with_lag = float(np.sqrt(np.mean(sol.fun**2)))
     if tau < 0.2 * data.step_s or with_lag >= without:
         tau = 0.0
-    return {"time_constant_s": tau, "fitted": True, "rmse_without_k": without, "rmse_with_k": with_lag}
+    return {"time_constant_s": tau, "fitted": True, "rmse_without_k": without, "rmse_with_k": with_lag,
+            "log_solution": sol.x}
 
 
 #: A fit with the heating one step earlier must lower the sample error by this share before
@@ -390,7 +397,8 @@ def heating_timing_check(model, data: CalibrationData, gains, theta_rc, sensor):
     u = data.u.copy()
     for seg in data.segments:
         u[seg.start:seg.stop - 1, 1] = data.u[seg.start + 1:seg.stop, 1]
-    advanced = fit_sensor_lag(model, dataclasses.replace(data, u=u), gains, theta_rc)
+    # From the fit as given: one step of timing moves the optimum a little, so the search is short.
+    advanced = fit_sensor_lag(model, dataclasses.replace(data, u=u), gains, theta_rc, start=sensor.get("log_solution"))
     given_k = sensor["rmse_with_k"] if sensor["time_constant_s"] > 0 else sensor["rmse_without_k"]
     earlier_k = advanced["rmse_with_k"] if advanced["time_constant_s"] > 0 else advanced["rmse_without_k"]
     return {"rmse_as_given_k": given_k, "rmse_one_step_earlier_k": earlier_k,
@@ -829,6 +837,16 @@ MIN_SLOW_PARTICIPATION = 0.10
 #: Widest 95 % interval of the slowest time constant, over its value, that ``auto`` accepts in
 #: a candidate (wider, and calibrate warns that the data do not determine it). [unitless]
 MAX_SLOW_INTERVAL_RATIO = 1.0
+
+
+#: Preset ``auto`` adds to its candidates when the data show a slow store, and the slowest
+#: time constant of the other candidates that calls for it [h]. Masonry and concrete homes
+#: have a structure mass that a second envelope node cannot hold apart from the envelope; in
+#: the fine-home survey (docs/calibration.md) the heavy home's fits came out at 180-350 h and
+#: the light and leaky homes' under 40 h. Homes under the threshold are spared a fit that
+#: would double the time of ``auto``.
+SLOW_STORE_MODEL = "4R3C"
+SLOW_STORE_TAU_H = 100.0
 
 
 def _slowest_participation(network):
@@ -1433,6 +1451,7 @@ def calibrate(
         n_rc = len(PRESETS[model].parameters)
         sensor = fit_sensor_lag(model, data, gains, sol.x[:n_rc])
         sensor["heating_timing"] = heating_timing_check(model, data, gains, sol.x[:n_rc], sensor)
+        sensor.pop("log_solution", None)
         if sensor["time_constant_s"] > 0:
             # The hourly fit again, reading the model through the lag: a lag left out biases
             # the indoor capacity and the gains (tests/test_estimate.py).
@@ -2109,7 +2128,7 @@ def predict(result: CalibrationResult, log, x0=None):
 
 @_one_blas_thread
 def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, path=None, models=MODEL_ORDER,
-                   ua_prior=None, method="output_error"):
+                   ua_prior=None, method="output_error", slow_store=None):
     """
     Fit the presets, compare them and keep the simplest adequate one.
 
@@ -2132,6 +2151,10 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     method : {'output_error', 'prediction_error'}
         Estimator of the final fit (see :func:`calibrate`); the candidates are compared by
         output error, on their open-loop prediction of the held-out tail.
+    slow_store : bool, optional
+        Add :data:`SLOW_STORE_MODEL` to the candidates when the slowest time constant of the
+        others is at least :data:`SLOW_STORE_TAU_H`; otherwise a comparison row says why it was
+        not tried. Default: with the default candidates only.
 
     Returns
     -------
@@ -2160,12 +2183,14 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
     rows = []
     fitted = {}
     previous = None
-    for model in models:
+
+    def candidate(model):
+        nonlocal previous
         try:
             _check_identifiable(train, model, path)
         except InputError as exc:
             rows.append({"model": model, "skipped": exc.message})
-            continue
+            return
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             res = calibrate(train, model=model, gains=gains, path=path, previous=previous, energy_metrics=False,
@@ -2195,6 +2220,19 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
             "slowest_mode_interval_ratio": _interval_ratio(res.time_constants_h[0],
                                                            res.intervals.get("time_constant_1_h")),
         })
+
+    for model in models:
+        candidate(model)
+    if slow_store is None:
+        slow_store = tuple(models) == MODEL_ORDER
+    if slow_store and SLOW_STORE_MODEL not in models and fitted:
+        slowest_h = max(res.time_constants_h[0] for res in fitted.values())
+        if slowest_h >= SLOW_STORE_TAU_H:
+            candidate(SLOW_STORE_MODEL)
+        else:
+            rows.append({"model": SLOW_STORE_MODEL,
+                         "skipped": f"not tried: the slowest time constant of the other candidates, {slowest_h:.0f} h, "
+                                    f"is under {SLOW_STORE_TAU_H:.0f} h (no slow structure mass to resolve)"})
     usable = [r for r in rows if "skipped" not in r]
     if not usable:
         raise InputError("no model can be identified from this data: " + "; ".join(r["skipped"] for r in rows), path=path)
