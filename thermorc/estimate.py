@@ -320,9 +320,11 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
     -----
     Hourly means hardly show a lag of minutes, but within the hour a cycling heater leaves
     a saw-tooth whose shape the sensor's lag sets. The lag is therefore fitted to the
-    samples themselves, jointly with R and C (the apertures, gains and initial states solved
-    exactly at each trial as in the hourly fit), by :func:`scipy.optimize.least_squares`
-    from the hourly optimum; the hourly fit is then run again with the lag held.
+    samples themselves, jointly with the indoor capacitance and the resistances from the
+    indoor node (the slower R and C held at the hourly optimum; the apertures, gains and
+    initial states solved exactly at each trial as in the hourly fit), by
+    :func:`scipy.optimize.least_squares` from the hourly optimum; the hourly fit is then run
+    again with the lag held.
     """
     if data.step_s > SENSOR_MAX_STEP_S:
         return {"time_constant_s": 0.0, "fitted": False}
@@ -335,18 +337,29 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
     rc_lo, rc_hi = np.log(np.array(bounds)).T
     tau_lo, tau_hi = math.log(0.1 * data.step_s), math.log(SENSOR_MAX_TAU_S)
 
-    def residual(v):
-        basis.sensor_s = math.exp(v[-1]) if v.size > len(theta_rc) else 0.0
+    # Within the hour only the room's own capacity and the paths from it shape the saw-tooth;
+    # the slower R and C stay at the hourly optimum, which keeps the search small.
+    fast = np.array(["indoor" in name for name in PRESETS[model].parameters] + [True])
+    theta_rc = np.asarray(theta_rc, dtype=float)
+
+    def full(v):
+        out = np.append(theta_rc, 0.0)
+        out[fast] = v
+        return out
+
+    def residual(v, lag=True):
+        x = full(v) if lag else np.append(theta_rc, -np.inf)
+        basis.sensor_s = math.exp(x[-1])
         try:
-            fixed, linear = basis.columns(np.exp(v[: len(theta_rc)]))
+            fixed, linear = basis.columns(np.exp(x[:-1]))
         except NetworkError:
             return np.full(n_blocks, 1e3)
         return basis.solve_linear(fixed, linear)[1]
 
-    without = float(np.sqrt(np.mean(residual(np.asarray(theta_rc)) ** 2)))
-    lo, hi = np.append(rc_lo, tau_lo), np.append(rc_hi, tau_hi)
+    without = float(np.sqrt(np.mean(residual(None, lag=False) ** 2)))
+    lo, hi = np.append(rc_lo, tau_lo)[fast], np.append(rc_hi, tau_hi)[fast]
     start = np.append(theta_rc, math.log(2.0 * data.step_s)) if start is None else np.asarray(start, dtype=float)
-    start = np.clip(start, lo + 1e-9, hi - 1e-9)
+    start = np.clip(start[fast], lo + 1e-9, hi - 1e-9)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         sol = scipy.optimize.least_squares(residual, start, bounds=(lo, hi),
@@ -356,7 +369,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
     if tau < 0.2 * data.step_s or with_lag >= without:
         tau = 0.0
     return {"time_constant_s": tau, "fitted": True, "rmse_without_k": without, "rmse_with_k": with_lag,
-            "log_solution": sol.x}
+            "log_solution": full(sol.x)}
 
 
 #: A fit with the heating one step earlier must lower the sample error by this share before
