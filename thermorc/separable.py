@@ -425,8 +425,8 @@ def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop,
     n_unit = seqs.shape[0] - 1
     first_hidden = n_unit + 1
     # One scalar recurrence per mode and column, row by row: the state stays in a register and
-    # each block's sum is kept until the block changes, which runs several times faster than
-    # stepping every mode and column together through memory.
+    # each block's sum is kept until the block changes, instead of stepping every mode and
+    # column together through memory.
     for seg in range(seg_start.size):
         start = seg_start[seg]
         stop = seg_stop[seg]
@@ -437,9 +437,15 @@ def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop,
             for s in range(n_unit):
                 _recur(0.0, aj, c_unit[j], seqs[1 + s], 0.0, outdoor, 0.0, outdoor,
                        block_id, row_weight, start, stop, acc, j, 1 + s)
-            for node in range(1, m):
-                _recur(w_inv[j, node], aj, 0.0, outdoor, 0.0, outdoor, 0.0, outdoor,
-                       block_id, row_weight, start, stop, acc, j, first_hidden + node - 1)
+            if m > 1:
+                # The hidden nodes' starts all decay as the mode does: one decay from 1, scaled below.
+                _recur(1.0, aj, 0.0, outdoor, 0.0, outdoor, 0.0, outdoor,
+                       block_id, row_weight, start, stop, acc, j, first_hidden)
+    for j in range(m):
+        for node in range(m - 1, 0, -1):
+            scale = w_inv[j, node]
+            for b in range(acc.shape[0]):
+                acc[b, j, first_hidden + node - 1] = scale * acc[b, j, first_hidden]
     n_sun = solar_nodes.size
     n_solar = n_channels * n_sun
     for b in range(acc.shape[0]):
