@@ -88,6 +88,42 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
         np.testing.assert_allclose(modelled[seg], held + ramp, atol=1e-7)
 
 
+@pytest.mark.parametrize("model", list(RC))
+def test_lagged_columns_are_the_lsim_sensor_reading_of_the_responses(data, model):
+    # A sensor with a first-order lag, tau ds/dt = T - s, reads each response column; the
+    # reference is scipy.signal.lsim of that system with T linear between samples, started at
+    # s = T, segment by segment, then the same block means as the fit uses.
+    rng = np.random.default_rng(1)
+    block_id = np.full(len(data.y), -1)
+    for seg in data.segments:
+        block_id[seg] = (np.arange(seg.stop - seg.start) + seg.start) // 4
+    used = block_id >= 0
+    block_id[used] = np.unique(block_id[used], return_inverse=True)[1]
+    n_blocks = int(block_id.max()) + 1
+    # Uneven weights within the blocks, as where samples are missing.
+    weight = np.where(used, rng.uniform(0.5, 1.5, len(block_id)), 0.0)
+    weight[used] /= np.bincount(block_id[used], weights=weight[used])[block_id[used]]
+    tau_s = 1500.0
+    basis = ResponseBasis(model, data, None, block_id, n_blocks)
+    plain = basis.rows(RC[model])
+    basis.sensor_s = tau_s
+    basis.row_weight = weight
+    f, lin = basis.columns(RC[model])
+    sensed = np.zeros_like(plain)
+    for seg in data.segments:
+        t = np.arange(seg.stop - seg.start) * data.step_s
+        for col in range(plain.shape[1]):
+            x = plain[seg, col]
+            sensed[seg, col] = scipy.signal.lsim(([1.0 / tau_s], [1.0, 1.0 / tau_s]), x, t, X0=[x[0] * tau_s],
+                                                 interp=True)[1]
+    ref = np.stack([np.bincount(block_id[used], weights=(sensed[:, c] * weight)[used], minlength=n_blocks)
+                    for c in range(plain.shape[1])], axis=1)
+    scale = np.abs(ref).max(axis=0) + 1e-12
+    assert np.all(np.abs(np.column_stack([f, lin]) - ref) <= 1e-7 * scale)
+    # And rows() reads through the lag too.
+    np.testing.assert_allclose(basis.rows(RC[model]), sensed, rtol=1e-7, atol=1e-9 * np.abs(sensed).max())
+
+
 def test_bounded_linear_solve_matches_lsq_linear():
     # Random problems where the unbounded solution breaks a bound: the exact bounded answer
     # is that of scipy.optimize.lsq_linear (bounded-variable least squares).

@@ -26,7 +26,6 @@ import numpy as np
 
 from thermorc.errors import NetworkError
 from thermorc.network import PRESETS
-from thermorc.simulate import sensed_temperature
 
 __all__ = ["ResponseBasis", "preset_matrices", "symmetric_modes"]
 
@@ -106,7 +105,8 @@ class ResponseBasis:
     indoor temperature starts the indoor node; the outdoor temperature is held linearly
     between samples, the powers as interval means, as in :func:`thermorc.simulate.run_modes`.
     With :attr:`sensor_s` above zero every response is read through the sensor's lag
-    (:func:`thermorc.simulate.sensed_temperature`), row by row, before the block means.
+    (:func:`thermorc.simulate.sensed_temperature`), row by row, before the block means
+    (the lag runs inside each modal recursion: both are linear, so the order does not matter).
     """
 
     def __init__(self, model, data, periods, block_id, n_blocks):
@@ -155,7 +155,6 @@ class ResponseBasis:
         self._y0 = np.array([data.y[seg][np.isfinite(data.y[seg])][0] for seg in self.segments])
         #: Time constant of the sensor's first-order lag [s]; 0 for none. Settable between runs.
         self.sensor_s = 0.0
-        self._to_blocks = None
 
     def columns(self, rc):
         """
@@ -173,27 +172,13 @@ class ResponseBasis:
         linear : numpy.ndarray, shape (n_blocks, n_linear)
             Change of the indoor temperature per unit of each linear parameter.
         """
-        if self.sensor_s > 0:
-            # The lag acts row by row, so the rows are filtered first and then averaged.
-            if self._to_blocks is None:
-                import scipy.sparse
-
-                used = np.flatnonzero(self.block_id >= 0)
-                self._to_blocks = scipy.sparse.csr_matrix(
-                    (self.row_weight[used], (self.block_id[used], used)), shape=(self.n_blocks, len(self.data.y)))
-            both = self._to_blocks @ self.rows(rc)
-        else:
-            both = self._run(rc, self.block_id, self.row_weight, self.n_blocks)
+        both = self._run(rc, self.block_id, self.row_weight, self.n_blocks)
         return both[:, 0], both[:, 1:]
 
     def rows(self, rc):
         """The responses of :meth:`columns` at every row (zero outside the segments)."""
         n = len(self.data.y)
-        out = self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n, self._segment_of(np.arange(n), n))
-        if self.sensor_s > 0:
-            for seg in self.segments:
-                out[seg] = sensed_temperature(out[seg], self.step_s, self.sensor_s)
-        return out
+        return self._run(rc, np.arange(n, dtype=np.int64), np.ones(n), n, self._segment_of(np.arange(n), n))
 
     def _segment_of(self, block_id, n_blocks):
         owner = np.full(n_blocks, -1, dtype=np.int64)
@@ -208,10 +193,11 @@ class ResponseBasis:
         m = self.n_states
         acc = np.zeros((n_blocks, m, self._n_unit + 1 + max(m - 1, 1)))
         rates, v = (np.zeros(m), np.eye(m)) if m <= 2 else symmetric_modes(_scaled(k, caps))
+        lag = sensor_coefficients(self.step_s, self.sensor_s)
         status = _columns_kernel(
             k, g_out, caps, rates, v, self.step_s, self._seg_start, self._seg_stop, self._y0, self._outdoor, self._d_outdoor,
             self._seqs, block_id, row_weight, self._owner if owner is None else owner, self.n_channels,
-            self._solar_nodes, self.n_gains, acc, out,
+            self._solar_nodes, self.n_gains, lag, acc, out,
         )
         if status:
             raise NetworkError("the network has a mode that does not decay")
@@ -347,10 +333,13 @@ def _phi12(x):
     return -em1 / x, (x + em1) / (x * x)
 
 
-def _recur(z, aj, c0, x0, c1, x1, c2, x2, block_id, row_weight, start, stop, acc, j, col):
-    """One mode's recursion ``z <- aj z + c0 x0 + c1 x1 + c2 x2`` from ``z``, summed into blocks."""
+def _recur(z, aj, c0, x0, c1, x1, c2, x2, lag, block_id, row_weight, start, stop, acc, j, col):
+    """One mode's recursion ``z <- aj z + c0 x0 + c1 x1 + c2 x2`` from ``z``, read through the
+    sensor's lag (:func:`sensor_coefficients`) and summed into blocks."""
     cur = -1
     total = 0.0
+    sa, sb0, sb1 = lag[0], lag[1], lag[2]
+    sensed = z  # the sensor starts equal to the temperature
     for row in range(start, stop):
         b = block_id[row]
         if b != cur:
@@ -359,14 +348,40 @@ def _recur(z, aj, c0, x0, c1, x1, c2, x2, block_id, row_weight, start, stop, acc
             cur = b
             total = 0.0
         if b >= 0:
-            total += row_weight[row] * z
+            total += row_weight[row] * sensed
         # The inputs are summed apart from z so that the chain from row to row is one multiply-add.
-        z = aj * z + (c0 * x0[row] + c1 * x1[row] + c2 * x2[row])
+        new = aj * z + (c0 * x0[row] + c1 * x1[row] + c2 * x2[row])
+        sensed = sa * sensed + (sb0 * new + sb1 * z)
+        z = new
     if cur >= 0:
         acc[cur, j, col] += total
 
+
+def sensor_coefficients(step_s, time_constant_s):
+    r"""
+    One step of a sensor's first-order lag, as :func:`thermorc.simulate.sensed_temperature`.
+
+    Parameters
+    ----------
+    step_s : float
+        Grid step. [s]
+    time_constant_s : float
+        Sensor time constant; 0 for none. [s]
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(a, b0, b1)`` of :math:`s_{k+1} = a s_k + b_0 T_{k+1} + b_1 T_k` (the temperature
+        linear between samples); ``(0, 1, 0)`` without a lag.
+    """
+    if time_constant_s <= 0:
+        return np.array([0.0, 1.0, 0.0])
+    a = math.exp(-step_s / time_constant_s)
+    b0 = 1.0 - time_constant_s * (1.0 - a) / step_s
+    return np.array([a, b0, (1.0 - a) - b0])
+
 def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop, y0, outdoor, d_outdoor, seqs, block_id, row_weight,
-                  owner, n_channels, solar_nodes, n_gains, acc, out):
+                  owner, n_channels, solar_nodes, n_gains, lag, acc, out):
     """Modes of the preset, every modal recursion summed into blocks, then the columns.
 
     One and two nodes find their modes here in closed form; more nodes take theirs from
@@ -432,14 +447,14 @@ def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop,
         stop = seg_stop[seg]
         for j in range(m):
             aj = a[j]
-            _recur(w_inv[j, 0] * y0[seg], aj, c_out0[j], outdoor, c_out1[j], d_outdoor, c_power[j], seqs[0],
+            _recur(w_inv[j, 0] * y0[seg], aj, c_out0[j], outdoor, c_out1[j], d_outdoor, c_power[j], seqs[0], lag,
                    block_id, row_weight, start, stop, acc, j, 0)
             for s in range(n_unit):
-                _recur(0.0, aj, c_unit[j], seqs[1 + s], 0.0, outdoor, 0.0, outdoor,
+                _recur(0.0, aj, c_unit[j], seqs[1 + s], 0.0, outdoor, 0.0, outdoor, lag,
                        block_id, row_weight, start, stop, acc, j, 1 + s)
             if m > 1:
                 # The hidden nodes' starts all decay as the mode does: one decay from 1, scaled below.
-                _recur(1.0, aj, 0.0, outdoor, 0.0, outdoor, 0.0, outdoor,
+                _recur(1.0, aj, 0.0, outdoor, 0.0, outdoor, 0.0, outdoor, lag,
                        block_id, row_weight, start, stop, acc, j, first_hidden)
     for j in range(m):
         for node in range(m - 1, 0, -1):

@@ -83,3 +83,25 @@ def test_auto_on_one_month_of_5_minute_data():
         secs = time.perf_counter() - start
     print(f"\n--model auto, one month of 5-min data ({len(log)} rows): {secs:.2f} s, chose {res.model}")
     assert secs < 2.0
+
+
+@pytest.mark.parametrize("home", ["light", "heavy"])
+def test_auto_on_one_month_of_a_fine_home(home):
+    # A fine home of thermorc.synthetic (invented weather): the heavy one's slow structure
+    # store brings the fourth candidate, 4R3C, into auto (estimate.SLOW_STORE_TAU_H).
+    from thermorc import synthetic
+
+    log, _ = synthetic.simulate_home(synthetic.fine_home(home), days=30, step_s=300, seed=3, warmup_days=45,
+                                     start="2023-10-20")
+    data = estimate.calibration_data(log)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ThermorcWarning)
+        estimate.calibrate_auto(estimate.calibration_data(log.iloc[:2000]))  # compile once
+        start = time.process_time()
+        res = estimate.calibrate_auto(data)
+        secs = time.process_time() - start
+    rows = res.extras["model_comparison"]["rows"]
+    tried = [r["model"] for r in rows if "skipped" not in r]
+    print(f"\n--model auto, one month of 5-min data, {home} fine home ({len(log)} rows): {secs:.2f} CPU-s, "
+          f"tried {', '.join(tried)}, chose {res.model}")
+    assert secs < 2.0
