@@ -347,16 +347,19 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
         out[fast] = v
         return out
 
-    def residual(v, lag=True):
-        x = full(v) if lag else np.append(theta_rc, -np.inf)
-        basis.sensor_s = math.exp(x[-1])
+    def residual_at(rc, sensor_s):
+        basis.sensor_s = sensor_s
         try:
-            fixed, linear = basis.columns(np.exp(x[:-1]))
+            fixed, linear = basis.columns(rc)
         except NetworkError:
             return np.full(n_blocks, 1e3)
         return basis.solve_linear(fixed, linear)[1]
 
-    without = float(np.sqrt(np.mean(residual(None, lag=False) ** 2)))
+    def residual(v):
+        x = full(v)
+        return residual_at(np.exp(x[:-1]), math.exp(x[-1]))
+
+    without = float(np.sqrt(np.mean(residual_at(np.exp(theta_rc), 0.0) ** 2)))
     lo, hi = np.append(rc_lo, tau_lo)[fast], np.append(rc_hi, tau_hi)[fast]
     start = np.append(theta_rc, math.log(2.0 * data.step_s)) if start is None else np.asarray(start, dtype=float)
     start = np.clip(start[fast], lo + 1e-9, hi - 1e-9)

@@ -26,6 +26,7 @@ import numpy as np
 
 from thermorc.errors import NetworkError
 from thermorc.network import PRESETS
+from thermorc.simulate import sensor_coefficients
 
 __all__ = ["ResponseBasis", "preset_matrices", "symmetric_modes"]
 
@@ -335,7 +336,7 @@ def _phi12(x):
 
 def _recur(z, aj, c0, x0, c1, x1, c2, x2, lag, block_id, row_weight, start, stop, acc, j, col):
     """One mode's recursion ``z <- aj z + c0 x0 + c1 x1 + c2 x2`` from ``z``, read through the
-    sensor's lag (:func:`sensor_coefficients`) and summed into blocks."""
+    sensor's lag (:func:`thermorc.simulate.sensor_coefficients`) and summed into blocks."""
     cur = -1
     total = 0.0
     sa, sb0, sb1 = lag[0], lag[1], lag[2]
@@ -356,29 +357,6 @@ def _recur(z, aj, c0, x0, c1, x1, c2, x2, lag, block_id, row_weight, start, stop
     if cur >= 0:
         acc[cur, j, col] += total
 
-
-def sensor_coefficients(step_s, time_constant_s):
-    r"""
-    One step of a sensor's first-order lag, as :func:`thermorc.simulate.sensed_temperature`.
-
-    Parameters
-    ----------
-    step_s : float
-        Grid step. [s]
-    time_constant_s : float
-        Sensor time constant; 0 for none. [s]
-
-    Returns
-    -------
-    numpy.ndarray
-        ``(a, b0, b1)`` of :math:`s_{k+1} = a s_k + b_0 T_{k+1} + b_1 T_k` (the temperature
-        linear between samples); ``(0, 1, 0)`` without a lag.
-    """
-    if time_constant_s <= 0:
-        return np.array([0.0, 1.0, 0.0])
-    a = math.exp(-step_s / time_constant_s)
-    b0 = 1.0 - time_constant_s * (1.0 - a) / step_s
-    return np.array([a, b0, (1.0 - a) - b0])
 
 def _columns_loop(k, g_out, caps, rates_given, v_given, dt, seg_start, seg_stop, y0, outdoor, d_outdoor, seqs, block_id, row_weight,
                   owner, n_channels, solar_nodes, n_gains, lag, acc, out):

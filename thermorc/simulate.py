@@ -54,6 +54,7 @@ __all__ = [
     "SimulationResult",
     "run_modes",
     "sensed_temperature",
+    "sensor_coefficients",
 ]
 
 _SERIES_BELOW = 1e-3  # x = rate*dt below which the phi functions use their Taylor series
@@ -85,16 +86,39 @@ def sensed_temperature(temperature_c, step_s, time_constant_s):
     first-order system [2]_), run by :func:`scipy.signal.lfilter`.
     """
     x = np.asarray(temperature_c, dtype=float)
-    tau = float(time_constant_s)
-    if tau <= 0 or x.shape[0] == 0:
+    if time_constant_s <= 0 or x.shape[0] == 0:
         return x.copy()
-    a = math.exp(-float(step_s) / tau)
-    b0 = 1.0 - tau * (1.0 - a) / float(step_s)
-    b = np.array([b0, (1.0 - a) - b0])
+    a, b0, b1 = sensor_coefficients(step_s, time_constant_s)
+    b = np.array([b0, b1])
     den = np.array([1.0, -a])
     zi = scipy.signal.lfilter_zi(b, den).reshape((1,) + (1,) * (x.ndim - 1)) * x[:1]
     out, _ = scipy.signal.lfilter(b, den, x, axis=0, zi=zi)
     return out
+
+
+def sensor_coefficients(step_s, time_constant_s):
+    r"""
+    One step of a sensor's first-order lag (:func:`sensed_temperature`).
+
+    Parameters
+    ----------
+    step_s : float
+        Grid step. [s]
+    time_constant_s : float
+        Sensor time constant; 0 for none. [s]
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(a, b0, b1)`` of :math:`s_{k+1} = a s_k + b_0 T_{k+1} + b_1 T_k` (the temperature
+        linear between samples); ``(0, 1, 0)`` without a lag.
+    """
+    step_s, time_constant_s = float(step_s), float(time_constant_s)
+    if time_constant_s <= 0:
+        return np.array([0.0, 1.0, 0.0])
+    a = math.exp(-step_s / time_constant_s)
+    b0 = 1.0 - time_constant_s * (1.0 - a) / step_s
+    return np.array([a, b0, (1.0 - a) - b0])
 
 
 def discretise(a, b, dt_s, method="zoh"):
