@@ -2275,7 +2275,9 @@ def calibrate_auto(log, gains="constant", holdout_fraction=0.2, step_s=None, pat
         "holdout_fraction": holdout_fraction,
         "rule": "simplest model within 5 % (or 0.02 K) of the best held-out open-loop RMSE, among those whose "
                 "slowest time constant is within the training record, carries at least 10 % of the indoor "
-                "temperature's step response to heating and has a 95 % interval no wider than its value",
+                "temperature's step response to heating and has a 95 % interval no wider than its value"
+                + (f"; {SLOW_STORE_MODEL} is a candidate when another's slowest time constant is at least "
+                   f"{SLOW_STORE_TAU_H:.0f} h" if slow_store else ""),
         "chosen": chosen,
     }
     return final
