@@ -19,33 +19,22 @@ import warnings
 
 import numpy as np
 import pandas as pd
-import scipy.signal
 
 sys.path.insert(0, os.path.dirname(__file__))
 import survey_fine_homes  # noqa: E402
 
 from thermorc import synthetic  # noqa: E402
 from thermorc.network import modes_of  # noqa: E402
-from thermorc.simulate import phi_functions  # noqa: E402
+from thermorc.simulate import run_modes  # noqa: E402
 
 N_FIT = 28 * survey_fine_homes.STEPS_PER_DAY
 
 
 def _sensed(space, modes, u, x0, weights, step_s):
-    """The sensor's reading at every control stamp, the modal recursion of synthetic.simulate_home."""
-    x = modes.rates_per_s * step_s
-    phi1, phi2, _ = phi_functions(x)
-    beta = modes.w_inv @ space.b
-    nb = space.n_boundaries
-    drive = (u[:-1] @ beta.T) * (step_s * phi1)[None, :]
-    drive += (np.diff(u[:, :nb], axis=0) @ beta[:, :nb].T) * (step_s * phi2)[None, :]
-    a = np.exp(-x)
-    z0 = modes.w_inv @ x0
-    z = np.empty((len(u), len(a)))
-    z[0] = z0
-    for i in range(len(a)):
-        z[1:, i] = scipy.signal.lfilter([0.0, 1.0], [1.0, -a[i]], drive[:, i], zi=[a[i] * z0[i]])[0]
-    return z @ ((weights @ space.c) @ modes.w) + u @ (weights @ space.d)
+    """The sensor's reading at every control stamp (boundaries linear between stamps, heat held)."""
+    foh = np.arange(u.shape[1]) < space.n_boundaries
+    states = run_modes(space, u, np.full(len(u) - 1, step_s), x0, foh, means=False, modes=modes)[0]
+    return states @ (weights @ space.c) + u @ (weights @ space.d)
 
 
 def floor(home, weather_name, start, seed):
