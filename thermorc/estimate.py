@@ -386,11 +386,6 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
 #: the synthetic fine homes, 16 correctly labelled logs came out 1.5-87 % worse when
 #: advanced, the same logs end-labelled 2-55 % better).
 TIMING_MARGIN = 0.05
-#: Most model runs of the advanced fit of :func:`heating_timing_check`. On four fine homes,
-#: labelled both ways, cutting the search from 80 runs to 6 moved the ratio of the two errors
-#: by at most 0.002 and changed no verdict; a cut search can only make the advanced fit
-#: look worse, so it never invents a timing warning.
-TIMING_MAX_NFEV = 80
 
 
 def heating_timing_check(model, data: CalibrationData, gains, theta_rc, sensor):
@@ -424,10 +419,8 @@ def heating_timing_check(model, data: CalibrationData, gains, theta_rc, sensor):
     u = data.u.copy()
     for seg in data.segments:
         u[seg.start:seg.stop - 1, 1] = data.u[seg.start + 1:seg.stop, 1]
-    # From the fit as given: one step of timing moves the optimum a little, so the search is
-    # short, and it is cut at TIMING_MAX_NFEV runs.
-    advanced = fit_sensor_lag(model, dataclasses.replace(data, u=u), gains, theta_rc, start=sensor.get("log_solution"),
-                              max_nfev=TIMING_MAX_NFEV)
+    # From the fit as given: one step of timing moves the optimum a little, so the search is short.
+    advanced = fit_sensor_lag(model, dataclasses.replace(data, u=u), gains, theta_rc, start=sensor.get("log_solution"))
     given_k = sensor["rmse_with_k"] if sensor["time_constant_s"] > 0 else sensor["rmse_without_k"]
     earlier_k = advanced["rmse_with_k"] if advanced["time_constant_s"] > 0 else advanced["rmse_without_k"]
     return {"rmse_as_given_k": given_k, "rmse_one_step_earlier_k": earlier_k,
