@@ -111,7 +111,6 @@ SCREEN_FTOL = 1e-6
 # reaches the optimum soonest (measured on the fits of the fine-home survey).
 RACE_STARTS = 5
 RACE_NFEV = 6
-RACE_MIN_STARTS = 1
 
 
 # -- data ---------------------------------------------------------------------------------
@@ -980,7 +979,7 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
 
     # With the linear parameters solved exactly, every start tried on the synthetic homes of
     # tests/test_estimate_fine_homes.py reached the same optimum; the start whose projected
-    # cost is lowest is run, the others cost one model run each. Many starts (4R3C) are raced.
+    # cost is lowest would do, but not always soonest: several starts are raced (RACE_STARTS).
     tried = []
     thetas = []
     for start in starts:
@@ -990,7 +989,7 @@ def _fit_output_error(model, data, gains, previous=None, max_nfev=400, block=1, 
         tried.append({"start_cost": 0.5 * float(r0 @ r0)})
         thetas.append(theta0)
     order = np.argsort([t["start_cost"] for t in tried], kind="stable")
-    race = order[:RACE_STARTS] if len(starts) > RACE_MIN_STARTS else order[:1]
+    race = order[:RACE_STARTS]
     if len(race) > 1:
         heats = [solve(thetas[i], RACE_NFEV) for i in race]
         for i, h in zip(race, heats):
