@@ -319,6 +319,30 @@ def test_auto_passes_over_a_slow_mode_the_indoor_air_hardly_shows():
     assert estimate._choose_model(table) == "4R3C"
 
 
+@pytest.mark.parametrize("rmse_4r3c, chosen", [
+    (0.13, "4R3C"),  # 8 % worse than the 2R2C's 0.12 K: within SLOW_STORE_SLACK, kept
+    (0.149, "4R3C"),  # 24 % worse
+    (0.151, "2R2C"),  # 26 % worse: clearly worse, the simplest adequate model instead
+])
+def test_auto_keeps_the_interior_mass_model_unless_clearly_worse(rmse_4r3c, chosen):
+    # Worked by hand with SLOW_STORE_SLACK = 0.25 (a share of the best held-out RMSE).
+    assert estimate.SLOW_STORE_SLACK == 0.25
+    table = [{"model": "1R1C", "holdout_rmse_k": 0.90, "slowest_mode_in_record": True},
+             {"model": "2R2C", "holdout_rmse_k": 0.12, "slowest_mode_in_record": True},
+             {"model": "3R2C", "holdout_rmse_k": 0.121, "slowest_mode_in_record": True},
+             {"model": "4R3C", "holdout_rmse_k": rmse_4r3c, "slowest_mode_in_record": True,
+              "slowest_mode_participation": 0.93, "slowest_mode_interval_ratio": 0.24}]
+    assert estimate._choose_model(table) == chosen
+    # Its slowest mode less well pinned down (interval 0.61 times the value, over
+    # SLOW_STORE_MAX_INTERVAL_RATIO = 0.5): the ordinary rule, the simplest model within 5 %
+    # (or 0.02 K) of the best 0.12 K, which is the 2R2C itself.
+    assert estimate.SLOW_STORE_MAX_INTERVAL_RATIO == 0.5
+    table[3]["slowest_mode_interval_ratio"] = 0.61
+    assert estimate._choose_model(table) == "2R2C"
+    table[3]["slowest_mode_interval_ratio"] = 1.5  # wider than the value: not adequate at all
+    assert estimate._choose_model(table) == "2R2C"
+
+
 def test_prediction_error_recovers_the_simulating_2r2c_and_its_noise():
     # Simulate-and-fit: the log comes from a known 2R2C with process and measurement noise
     # (exact discretisation and Van Loan's noise integral, themselves checked in

@@ -88,18 +88,24 @@ def test_columns_rebuild_the_lsim_response(data, model, gains):
         np.testing.assert_allclose(modelled[seg], held + ramp, atol=1e-7)
 
 
+def _blocks_of_four(data):
+    """Blocks of four rows within each segment, numbered consecutively."""
+    block_id = np.full(len(data.y), -1)
+    for seg in data.segments:
+        block_id[seg] = (np.arange(seg.stop - seg.start) + seg.start) // 4
+    used = block_id >= 0
+    block_id[used] = np.unique(block_id[used], return_inverse=True)[1]
+    return block_id, int(block_id.max()) + 1
+
+
 @pytest.mark.parametrize("model", list(RC))
 def test_lagged_columns_are_the_lsim_sensor_reading_of_the_responses(data, model):
     # A sensor with a first-order lag, tau ds/dt = T - s, reads each response column; the
     # reference is scipy.signal.lsim of that system with T linear between samples, started at
     # s = T, segment by segment, then the same block means as the fit uses.
     rng = np.random.default_rng(1)
-    block_id = np.full(len(data.y), -1)
-    for seg in data.segments:
-        block_id[seg] = (np.arange(seg.stop - seg.start) + seg.start) // 4
+    block_id, n_blocks = _blocks_of_four(data)
     used = block_id >= 0
-    block_id[used] = np.unique(block_id[used], return_inverse=True)[1]
-    n_blocks = int(block_id.max()) + 1
     # Uneven weights within the blocks, as where samples are missing.
     weight = np.where(used, rng.uniform(0.5, 1.5, len(block_id)), 0.0)
     weight[used] /= np.bincount(block_id[used], weights=weight[used])[block_id[used]]
@@ -128,17 +134,52 @@ def test_bounded_linear_solve_matches_lsq_linear():
     # Random problems where the unbounded solution breaks a bound: the exact bounded answer
     # is that of scipy.optimize.lsq_linear (bounded-variable least squares).
     rng = np.random.default_rng(4)
-    basis = ResponseBasis.__new__(ResponseBasis)
-    basis._held = None  # the bounds held last time are tried first: reuse across trials on purpose
-    for trial in range(30):
+    # The hidden starts unbounded first, then bounded too (0.5 to 2, which the true 1 and 3 and
+    # the noise push against from both sides).
+    for hidden_lo, hidden_hi in ((-np.inf, np.inf), (0.5, 2.0)):
+        basis = ResponseBasis.__new__(ResponseBasis)
+        basis._held = None  # the bounds held last time are tried first: reuse across trials on purpose
+        basis._held_at = np.zeros(5)
         basis.n_solar, basis.n_gains, basis.n_hidden, basis.n_bounded = 2, 1, 2, 3
         basis.n_linear = 5
-        linear = rng.normal(size=(60, 5))
-        basis.y_blocks = linear @ np.array([-1.0, 2.0, -0.5, 1.0, 3.0]) + rng.normal(0, 0.5, 60)
-        coef, resid = basis.solve_linear(np.zeros(60), linear)
-        ref = scipy.optimize.lsq_linear(linear, basis.y_blocks, bounds=([0, 0, 0, -np.inf, -np.inf], np.inf), method="bvls")
-        np.testing.assert_allclose(coef, ref.x, atol=1e-8)
-        np.testing.assert_allclose(resid, basis.y_blocks - linear @ coef)
+        basis.lower = np.array([0, 0, 0, hidden_lo, hidden_lo])
+        basis.upper = np.array([np.inf, np.inf, np.inf, hidden_hi, hidden_hi])
+        for trial in range(30):
+            linear = rng.normal(size=(60, 5))
+            basis.y_blocks = linear @ np.array([-1.0, 2.0, -0.5, 1.0, 3.0]) + rng.normal(0, 0.5, 60)
+            coef, resid = basis.solve_linear(np.zeros(60), linear)
+            ref = scipy.optimize.lsq_linear(linear, basis.y_blocks, bounds=(basis.lower, basis.upper), method="bvls")
+            np.testing.assert_allclose(coef, ref.x, atol=1e-8)
+            np.testing.assert_allclose(resid, basis.y_blocks - linear @ coef)
+
+
+def test_projected_jacobian_with_a_start_held_at_a_bound(data):
+    # With the hidden starts bounded so tightly that the solve holds them at a bound, the
+    # projected residual's Jacobian (Golub and Pereyra 1973) must still be its derivative:
+    # checked against central differences of the projected residual itself.
+    model = "2R2C"
+    block_id, n_blocks = _blocks_of_four(data)
+    basis = ResponseBasis(model, data, None, block_id, n_blocks, state_bounds_c=(-50.0, -40.0))
+    theta = np.log(RC[model])
+    fixed, linear = basis.columns(np.exp(theta))
+    coef, resid = basis.solve_linear(fixed, linear)
+    n_fixed = basis.n_solar + basis.n_gains
+    assert np.all(coef[n_fixed:] == -40.0) and basis._held[n_fixed:].all()
+    jac = basis.projected_jacobian(theta, fixed, linear, coef)
+
+    def projected(th):
+        f, lin = basis.columns(np.exp(th))
+        return basis.solve_linear(f, lin)[1]
+
+    ref = np.empty_like(jac)
+    for k in range(theta.size):
+        h = 1e-5
+        up, down = theta.copy(), theta.copy()
+        up[k] += h
+        down[k] -= h
+        ref[:, k] = (projected(up) - projected(down)) / (2 * h)
+    scale = np.abs(ref).max(axis=0)
+    assert np.all(np.abs(jac - ref) <= 1e-4 * scale)
 
 
 def test_separable_fit_reaches_the_full_least_squares_optimum():

@@ -23,6 +23,7 @@ import itertools
 import math
 
 import numpy as np
+import scipy.optimize
 
 from thermorc.errors import NetworkError
 from thermorc.network import PRESETS
@@ -97,6 +98,11 @@ class ResponseBasis:
         Residual block of each row, ``-1`` for rows not compared.
     n_blocks : int
         Number of blocks.
+    state_bounds_c : tuple
+        Lowest and highest initial temperature of the hidden nodes, each a number or one value
+        per hidden start (segment by segment, in node order). [°C] Without bounds a node
+        that holds almost no heat, tightly coupled to the room, can take a start of thousands
+        of degrees whose tiny, slow trace the fit then uses as a free drift.
 
     Notes
     -----
@@ -110,7 +116,7 @@ class ResponseBasis:
     (the lag runs inside each modal recursion: both are linear, so the order does not matter).
     """
 
-    def __init__(self, model, data, periods, block_id, n_blocks):
+    def __init__(self, model, data, periods, block_id, n_blocks, state_bounds_c=(-math.inf, math.inf)):
         self.model = model
         nodes = PRESETS[model].nodes
         self.n_states = len(nodes)
@@ -129,6 +135,9 @@ class ResponseBasis:
         self.n_hidden = (self.n_states - 1) * len(self.segments)
         self.n_linear = self.n_solar + self.n_gains + self.n_hidden
         self.n_bounded = self.n_solar + self.n_gains  # apertures and gains are >= 0
+        lo, hi = (np.broadcast_to(np.asarray(b, dtype=float), (self.n_hidden,)) for b in state_bounds_c)
+        self.lower = np.concatenate([np.zeros(self.n_bounded), lo])
+        self.upper = np.concatenate([np.full(self.n_bounded, math.inf), hi])
         used = block_id >= 0
         counts = np.bincount(block_id[used], minlength=n_blocks).astype(float)
         self.n_blocks = int(n_blocks)
@@ -139,6 +148,7 @@ class ResponseBasis:
         self._n_unit = self.n_channels + self.n_gains  # irradiance channels, then gains levels
         self._owner = self._segment_of(self.block_id, self.n_blocks)
         self._held = None  # the bounds held at the last solve: usually the answer next time too
+        self._held_at = np.zeros(self.n_linear)  # the value each held coefficient is held at
         u = data.u
         # Inputs over the whole log: one row per stamp; the step from row k uses row k's values.
         self._outdoor = np.ascontiguousarray(u[:, 0])
@@ -206,7 +216,8 @@ class ResponseBasis:
 
     def solve_linear(self, fixed, linear, extra=None):
         """
-        Linear parameters by least squares, apertures and gains kept non-negative.
+        Linear parameters by least squares, apertures and gains kept non-negative and the
+        hidden nodes' starts within ``state_bounds_c``.
 
         Parameters
         ----------
@@ -223,29 +234,39 @@ class ResponseBasis:
 
         Notes
         -----
-        At most three coefficients carry a bound. The bounds held at the previous call are
-        tried first and kept when the Karush-Kuhn-Tucker conditions hold (they usually do
-        between neighbouring R and C); otherwise every set of held bounds is tried and the
-        best feasible solution kept (a convex quadratic's minimum is the unconstrained
-        minimum on its own active set), so the answer is always the exact bounded optimum.
+        The bounds held at the previous call are tried first and kept when the
+        Karush-Kuhn-Tucker conditions hold (they usually do between neighbouring R and C),
+        then the bounds the unbounded solution breaks. Otherwise, with only the apertures and
+        gains bounded (at most three coefficients), every set of held bounds is tried and the
+        best feasible solution kept (a convex quadratic's minimum is the unconstrained minimum
+        on its own active set); with the starts bounded as well, the bounded-variable least
+        squares of Stark and Parker (1995) through :func:`scipy.optimize.lsq_linear`. Either way
+        the answer is the exact bounded optimum.
+
+        References
+        ----------
+        .. [1] P. B. Stark and R. L. Parker, "Bounded-variable least-squares: an algorithm and
+           applications," Computational Statistics, vol. 10, pp. 129-141, 1995.
         """
         target = self.y_blocks - fixed
-        n_bounded = self.n_bounded
         coef = None
         if self._held is not None:
-            coef = self._checked(linear, target, self._held)
+            coef = self._checked(linear, target, self._held, self._held_at)
         if coef is None:
             coef = _lstsq(linear, target)
-            held = np.zeros(self.n_linear, dtype=bool)
-            held[:n_bounded] = coef[:n_bounded] < 0
-            if held.any():
-                # Usually holding the violated bounds is the answer; otherwise try them all.
-                coef = self._checked(linear, target, held)
-                if coef is None:
-                    coef = self._enumerate_bounds(linear, target, n_bounded)
-                    held = np.zeros(self.n_linear, dtype=bool)
-                    held[:n_bounded] = coef[:n_bounded] == 0
-            self._held = held
+            low, high = coef < self.lower, coef > self.upper
+            if low.any() or high.any():
+                # Usually holding the violated bounds is the answer; otherwise search the faces.
+                at = np.where(low, self.lower, np.where(high, self.upper, 0.0))
+                coef = self._checked(linear, target, low | high, at)
+                if coef is None and not np.any(np.isfinite(self.lower[self.n_bounded:])):
+                    coef = self._enumerate_bounds(linear, target, self.n_bounded)
+                if coef is None or np.any(coef < self.lower) or np.any(coef > self.upper):
+                    coef = scipy.optimize.lsq_linear(linear, target, bounds=(self.lower, self.upper),
+                                                     method="bvls").x
+                    coef = np.clip(coef, self.lower, self.upper)
+            self._held = (coef <= self.lower) | (coef >= self.upper)
+            self._held_at = np.where(self._held, coef, 0.0)
         resid = target - linear @ coef
         if extra is not None:
             resid = np.append(resid, extra)
@@ -277,10 +298,13 @@ class ResponseBasis:
         (Golub and Pereyra 1973, the full form). Only the columns are differenced, one model
         run per parameter, and no further linear solves are needed.
         """
-        free = ~self._held  # the face of the bounds that solve_linear found at theta_rc
+        held = self._held  # the face of the bounds that solve_linear found at theta_rc
+        free = ~held
         a = linear[:, free]
         c = coef[free]
         resid = self.y_blocks - fixed - linear @ coef
+        # Coefficients held at a non-zero bound move the fixed part with the columns.
+        fixed = fixed + linear[:, held] @ coef[held]
         pinv = np.linalg.pinv(a)
         jac = np.empty((fixed.size, theta_rc.size))
         for k in range(theta_rc.size):
@@ -288,25 +312,28 @@ class ResponseBasis:
             moved = theta_rc.copy()
             moved[k] += h
             f2, lin2 = self.columns(np.exp(moved))
-            d_fixed = (f2 - fixed) / h
+            d_fixed = (f2 + lin2[:, held] @ coef[held] - fixed) / h
             d_a = (lin2[:, free] - a) / h
             v = d_fixed + d_a @ c
             jac[:, k] = -(v - a @ (pinv @ v)) - pinv.T @ (d_a.T @ resid)
         return jac
 
-    def _checked(self, linear, target, held):
-        """The solution with ``held`` at zero if it is the bounded optimum (KKT), else None."""
-        n_bounded = self.n_bounded
-        trial = self._held_solution(linear, target, held)
-        if np.any(trial[:n_bounded] < 0):
+    def _checked(self, linear, target, held, at):
+        """The solution with ``held`` at ``at`` if it is the bounded optimum (KKT), else None."""
+        trial = self._held_solution(linear, target, held, at)
+        if np.any(trial < self.lower) or np.any(trial > self.upper):
             return None
         # No held coefficient may lower the residual by leaving its bound.
         gradient = linear[:, held].T @ (target - linear @ trial)
         scale = np.linalg.norm(linear[:, held], axis=0) * max(np.linalg.norm(target), 1e-300)
-        return trial if np.all(gradient <= 1e-10 * scale) else None
+        inward = np.where(at[held] >= self.upper[held], -gradient, gradient)
+        return trial if np.all(inward <= 1e-10 * scale) else None
 
-    def _held_solution(self, linear, target, held):
+    def _held_solution(self, linear, target, held, at=None):
         trial = np.zeros(self.n_linear)
+        if at is not None and held.any():
+            trial[held] = at[held]
+            target = target - linear[:, held] @ trial[held]
         trial[~held] = _lstsq(linear[:, ~held], target)
         return trial
 

@@ -61,17 +61,22 @@ def hourly(frame, step="1h"):
     return out
 
 
-def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_step=None):
-    """One fit and prediction; returns a dict of figures. ``fit(data, gains)`` may replace calibrate_auto;
-    ``fit_step`` (e.g. ``"1h"``) fits on the log put on that coarser grid, and predicts the 5-minute log."""
-    spec = synthetic.fine_home(home)
+def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_step=None, run=None):
+    """One fit and prediction; returns a dict of figures. ``home`` is a preset's name or a FineHome;
+    ``fit(data, gains)`` may replace calibrate_auto; ``fit_step`` (e.g. ``"1h"``) fits on the log put on
+    that coarser grid, and predicts the 5-minute log; a dict ``run`` receives the fine model's run and log
+    (``simulate_home(..., return_run=True)``)."""
+    spec = home if isinstance(home, synthetic.FineHome) else synthetic.fine_home(home)
     if weather_name == "invented":
         weather, site, tz = None, INVENTED_SITE, "America/Chicago"
-        log, truth = synthetic.simulate_home(spec, days=42, step_s=300, seed=seed, warmup_days=45, start=start)
+        log, truth, fine = synthetic.simulate_home(spec, days=42, step_s=300, seed=seed, warmup_days=45, start=start,
+                                                   return_run=True)
     else:
         weather, site, tz = synthetic.tmy3_weather(weather_name, start, 45, 43)
-        log, truth = synthetic.simulate_home(spec, weather=weather, days=42, step_s=300, seed=seed, warmup_days=45,
-                                             site=site, tz=tz)
+        log, truth, fine = synthetic.simulate_home(spec, weather=weather, days=42, step_s=300, seed=seed,
+                                                   warmup_days=45, site=site, tz=tz, return_run=True)
+    if run is not None:
+        run.update(fine, log=log)
     where = {"latitude": site[0], "longitude": site[1], "altitude_m": site[2]}
     weights = None
     if "cw" in variants:
@@ -97,7 +102,7 @@ def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_ste
     tau, tau_true = result.time_constants_h[0], truth["time_constant_relevant_h"]
     rmse = float(np.sqrt(np.nanmean(err**2)))
     return {
-        "home": home, "weather": weather_name[:3], "start": start, "seed": seed, "model": result.model,
+        "home": spec.name, "weather": weather_name[:3], "start": start, "seed": seed, "model": result.model,
         "ua_ratio": ua / hi, "ua_ok": 0.95 * lo <= ua <= 1.05 * hi,
         "tau_h": tau, "tau_true_h": tau_true, "tau_ok": abs(tau / tau_true - 1) <= 0.25,
         "rmse_k": rmse, "bias_k": float(np.nanmean(err)), "pred_ok": rmse <= 0.3,
