@@ -915,12 +915,12 @@ SLOW_STORE_TAU_H = 100.0
 #: How much worse than the best held-out RMSE the slow-store model may predict the held-out
 #: tail and still be kept (a share of the best), when the 95 % interval of its slowest time
 #: constant is at most :data:`SLOW_STORE_MAX_INTERVAL_RATIO` times the value. [unitless]
-#: Our choice, from the surveys of docs/calibration.md ("Model choice"): a heavy home's 2R2C
-#: came out at 135-190 h against the fine model's 210-290 h, yet predicted the 5-day tail up
-#: to 15 % better than the 4R3C that had the time constant right; on 96 fits a slack of 0.25
-#: and of 0.5 kept the same models, 0.12 fewer. Without the interval test the slack also kept
-#: two well-insulated 4R3C fits with a slowest mode 1.6 times too long (interval ratios 0.61
-#: and 0.81; the heavy homes' were 0.19-0.31).
+#: Our choice, from the surveys of docs/calibration.md ("The 4R3C preset"): a heavy home's
+#: 2R2C came out at 138-193 h against the fine model's 208-275 h, yet predicted the 5-day tail
+#: up to 15 % better than the 4R3C that had the time constant within 15 %; on 96 fits (before
+#: the interval test) a slack of 0.25 and of 0.5 kept the same models, 0.12 fewer. Without the interval test the slack
+#: also kept two well-insulated 4R3C fits with a slowest mode 1.6 times too long (interval
+#: ratios 0.61 and 0.81; four heavy homes' were 0.19-0.31).
 SLOW_STORE_SLACK = 0.25
 SLOW_STORE_MAX_INTERVAL_RATIO = 0.5
 
