@@ -19,7 +19,6 @@ References
 
 from __future__ import annotations
 
-import itertools
 import math
 
 import numpy as np
@@ -236,12 +235,9 @@ class ResponseBasis:
         -----
         The bounds held at the previous call are tried first and kept when the
         Karush-Kuhn-Tucker conditions hold (they usually do between neighbouring R and C),
-        then the bounds the unbounded solution breaks. Otherwise, with only the apertures and
-        gains bounded (at most three coefficients), every set of held bounds is tried and the
-        best feasible solution kept (a convex quadratic's minimum is the unconstrained minimum
-        on its own active set); with the starts bounded as well, the bounded-variable least
-        squares of Stark and Parker (1995) through :func:`scipy.optimize.lsq_linear`. Either way
-        the answer is the exact bounded optimum.
+        then the bounds the unbounded solution breaks; otherwise the bounded-variable least
+        squares of Stark and Parker [1]_ (:func:`scipy.optimize.lsq_linear`) finds the face.
+        Either way the answer is the exact bounded optimum.
 
         References
         ----------
@@ -259,9 +255,7 @@ class ResponseBasis:
                 # Usually holding the violated bounds is the answer; otherwise search the faces.
                 at = np.where(low, self.lower, np.where(high, self.upper, 0.0))
                 coef = self._checked(linear, target, low | high, at)
-                if coef is None and not np.any(np.isfinite(self.lower[self.n_bounded:])):
-                    coef = self._enumerate_bounds(linear, target, self.n_bounded)
-                if coef is None or np.any(coef < self.lower) or np.any(coef > self.upper):
+                if coef is None:
                     coef = scipy.optimize.lsq_linear(linear, target, bounds=(self.lower, self.upper),
                                                      method="bvls").x
                     coef = np.clip(coef, self.lower, self.upper)
@@ -329,28 +323,13 @@ class ResponseBasis:
         inward = np.where(at[held] >= self.upper[held], -gradient, gradient)
         return trial if np.all(inward <= 1e-10 * scale) else None
 
-    def _held_solution(self, linear, target, held, at=None):
+    def _held_solution(self, linear, target, held, at):
         trial = np.zeros(self.n_linear)
-        if at is not None and held.any():
+        if held.any():
             trial[held] = at[held]
             target = target - linear[:, held] @ trial[held]
         trial[~held] = _lstsq(linear[:, ~held], target)
         return trial
-
-    def _enumerate_bounds(self, linear, target, n_bounded):
-        best, best_rss = None, math.inf
-        for pattern in itertools.product((False, True), repeat=n_bounded):
-            if not any(pattern):
-                continue
-            held = np.zeros(self.n_linear, dtype=bool)
-            held[:n_bounded] = pattern
-            trial = self._held_solution(linear, target, held)
-            if np.any(trial[:n_bounded] < 0):
-                continue
-            rss = float(np.sum((target - linear @ trial) ** 2))
-            if rss < best_rss:
-                best, best_rss = trial, rss
-        return best  # holding every bound gives a feasible point, so best is set
 
 
 def _phi12(x):
