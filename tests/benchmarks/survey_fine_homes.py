@@ -110,11 +110,11 @@ def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_ste
     }
 
 
-def summary(rows):
+def summary(rows, by="home"):
     frame = pd.DataFrame(rows)
     lines = [f"fits {len(frame)}: prediction <= 0.3 K {int(frame.pred_ok.sum())}, UA in range {int(frame.ua_ok.sum())}, "
              f"tau +-25 % {int(frame.tau_ok.sum())}, median RMSE {frame.rmse_k.median():.3f} K"]
-    by_home = frame.groupby("home").agg(pred=("pred_ok", "sum"), ua=("ua_ok", "sum"), tau=("tau_ok", "sum"),
+    by_home = frame.groupby(by).agg(pred=("pred_ok", "sum"), ua=("ua_ok", "sum"), tau=("tau_ok", "sum"),
                                         median_rmse=("rmse_k", "median"), n=("home", "size"))
     return "\n".join(lines) + "\n" + by_home.to_string()
 
