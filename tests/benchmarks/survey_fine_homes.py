@@ -104,6 +104,9 @@ def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_ste
     return {
         "home": spec.name, "weather": weather_name[:3], "start": start, "seed": seed, "model": result.model,
         "ua_ratio": ua / hi, "ua_ok": 0.95 * lo <= ua <= 1.05 * hi,
+        # Whether the 95 % interval of UA reaches the range [outdoor-only, total].
+        "ua_interval_meets_range": bool(result.intervals["heat_loss_coefficient_w_per_k"][0] <= hi
+                                        and result.intervals["heat_loss_coefficient_w_per_k"][1] >= lo),
         "tau_h": tau, "tau_true_h": tau_true, "tau_ok": abs(tau / tau_true - 1) <= 0.25,
         "rmse_k": rmse, "bias_k": float(np.nanmean(err)), "pred_ok": rmse <= 0.3,
         "share": result.extras.get("heating_share", float("nan")), "seconds": time.perf_counter() - t0,
