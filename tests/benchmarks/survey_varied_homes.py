@@ -43,6 +43,7 @@ import survey_fine_homes  # noqa: E402
 from oracle_gains_floor import _sensed  # noqa: E402
 
 from thermorc import synthetic  # noqa: E402
+from thermorc.errors import InputError  # noqa: E402
 from thermorc.network import modes_of  # noqa: E402
 
 WEATHERS = ("723170TYA.CSV", "703165TY.csv", "invented")
@@ -121,11 +122,16 @@ def main(argv=None):
     variants = set(filter(None, args.variant.split(",")))
     i, n = (int(v) for v in args.part.split("/"))
     warnings.simplefilter("ignore")
-    rows = []
+    rows, refused = [], []
     for draw in range(args.first, args.first + args.homes)[i::n]:
         spec, weather, start, what = varied_home(draw)
         run = {}
-        row = survey_fine_homes.run_case(spec, weather, start, 1, variants=variants, gains=args.gains, run=run)
+        try:
+            row = survey_fine_homes.run_case(spec, weather, start, 1, variants=variants, gains=args.gains, run=run)
+        except InputError as exc:  # thermorc refused the log: say so, it is not a fit
+            refused.append(draw)
+            print(f"{spec.name} refused: {exc.message} | {what}", flush=True)
+            continue
         row["floor_k"] = prediction_floor(run, 28 * survey_fine_homes.STEPS_PER_DAY)
         row["what"] = what
         rows.append(row)
@@ -137,7 +143,7 @@ def main(argv=None):
     print(survey_fine_homes.summary(rows, by="preset"))
     fair = [row for row in rows if row["floor_k"] <= 0.3]
     print(f"of them {len(fair)} with a prediction floor <= 0.3 K: prediction <= 0.3 K "
-          f"{sum(row['pred_ok'] for row in fair)}")
+          f"{sum(row['pred_ok'] for row in fair)}; refused (a clear error, no result): {len(refused)} {refused}")
     return 0
 
 
