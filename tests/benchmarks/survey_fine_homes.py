@@ -100,13 +100,13 @@ def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_ste
     ua = result.heat_loss_coefficient_w_per_k
     lo, hi = truth["heat_loss_outdoor_w_per_k"], truth["heat_loss_coefficient_w_per_k"]
     tau, tau_true = result.time_constants_h[0], truth["time_constant_relevant_h"]
+    ua_lo, ua_hi = result.intervals["heat_loss_coefficient_w_per_k"]
     rmse = float(np.sqrt(np.nanmean(err**2)))
     return {
         "home": spec.name, "weather": weather_name[:3], "start": start, "seed": seed, "model": result.model,
         "ua_ratio": ua / hi, "ua_ok": 0.95 * lo <= ua <= 1.05 * hi,
-        # Whether the 95 % interval of UA reaches the range [outdoor-only, total].
-        "ua_interval_meets_range": bool(result.intervals["heat_loss_coefficient_w_per_k"][0] <= hi
-                                        and result.intervals["heat_loss_coefficient_w_per_k"][1] >= lo),
+        # The 95 % interval of UA over the total, and whether it reaches the range [outdoor-only, total].
+        "ua_lo_ratio": ua_lo / hi, "ua_hi_ratio": ua_hi / hi, "ua_interval_meets_range": bool(ua_lo <= hi and ua_hi >= lo),
         "tau_h": tau, "tau_true_h": tau_true, "tau_ok": abs(tau / tau_true - 1) <= 0.25,
         "rmse_k": rmse, "bias_k": float(np.nanmean(err)), "pred_ok": rmse <= 0.3,
         "share": result.extras.get("heating_share", float("nan")), "seconds": time.perf_counter() - t0,
