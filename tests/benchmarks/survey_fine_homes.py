@@ -104,7 +104,7 @@ def run_case(home, weather_name, start, seed, variants, gains, fit=None, fit_ste
     rmse = float(np.sqrt(np.nanmean(err**2)))
     return {
         "home": spec.name, "weather": weather_name[:3], "start": start, "seed": seed, "model": result.model,
-        "ua_ratio": ua / hi, "ua_ok": 0.95 * lo <= ua <= 1.05 * hi,
+        "ua_ratio": ua / hi, "ua_outdoor_ratio": lo / hi, "ua_ok": 0.95 * lo <= ua <= 1.05 * hi,
         # The 95 % interval of UA over the total, and whether it reaches the range [outdoor-only, total].
         "ua_lo_ratio": ua_lo / hi, "ua_hi_ratio": ua_hi / hi, "ua_interval_meets_range": bool(ua_lo <= hi and ua_hi >= lo),
         "tau_h": tau, "tau_true_h": tau_true, "tau_ok": abs(tau / tau_true - 1) <= 0.25,
