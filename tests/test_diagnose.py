@@ -358,3 +358,22 @@ def test_bound_warnings():
     assert out[0].startswith("'a' = 0 ended at its lower bound")
     assert "'c'" in out[1] and "upper bound" in out[1] and "fewer parameters" in out[1]
     assert dg.bound_warnings([11.0], 0.0, 10.0, ["e"])[0].startswith("'e' = 11 ended at its upper")
+
+
+def test_indoor_excursion_of_a_setback_cycle_and_a_held_setpoint():
+    # Hand-worked: 5-minute readings at 21 °C by day and 17 °C for 8 h a night give hourly
+    # means of 21 (16 h a day) and 17 (8 h): the 5-95 % range is 4 K. A deadband of
+    # +-0.25 K cycled within each hour leaves every hourly mean at the setpoint (range 0).
+    index = pd.date_range("2024-01-01", periods=14 * 288, freq="5min")
+    setback = np.where(index.hour < 8, 17.0, 21.0)
+    assert dg.indoor_excursion_k(setback, index) == pytest.approx(4.0)
+    held = 21.0 + 0.25 * np.sign(np.sin(2 * np.pi * (np.arange(index.size) + 0.5) / 6))
+    assert dg.indoor_excursion_k(held, index) == pytest.approx(0.0, abs=1e-12)
+    assert len(dg.excursion_warnings(dg.indoor_excursion_k(held, index))) == 1
+    assert dg.excursion_warnings(dg.indoor_excursion_k(setback, index)) == []
+    # Gaps are ignored, and a log without readings has no excursion.
+    gappy = setback.copy()
+    gappy[: 288] = np.nan
+    assert dg.indoor_excursion_k(gappy, index) == pytest.approx(4.0)
+    assert math.isnan(dg.indoor_excursion_k(np.full(index.size, np.nan), index))
+    assert dg.excursion_warnings(math.nan) == []

@@ -37,11 +37,11 @@ CASES = {
     ("late", "light"): (0.25, 0.55),  # measured 0.47 K
     ("late", "leaky"): (0.25, 0.3),
     ("late", "well_insulated"): (0.25, 0.75),  # measured 0.68 K
-    ("late", "heavy"): (0.25, 0.3),  # 4R3C kept: measured +11 % (307 h against 275 h; the 2R2C's 183 h was -34 %)
+    ("late", "heavy"): (0.25, 0.3),  # 4R3C kept: measured +10 % (302 h against 275 h; the 2R2C's 183 h was -34 %)
     ("mid", "light"): (0.25, 0.3),
     ("mid", "leaky"): (0.25, 0.3),
     ("mid", "well_insulated"): (0.25, 0.3),
-    ("mid", "heavy"): (0.40, 0.3),  # tau target not met: measured -32 %
+    ("mid", "heavy"): (0.40, 0.3),  # tau target not met: measured -33 %
 }
 
 
@@ -107,9 +107,9 @@ def test_a_given_ground_temperature_gives_the_total_heat_loss_coefficient(fitted
 @pytest.mark.slow
 def test_a_thermostat_without_setback_gets_its_time_constant_flagged():
     # Held at one setpoint day and night, the light home never shows a free response. Measured:
-    # the fit finds a slow mode of some 1,350 h against the fine model's 35 h. Either the time
-    # constant is right, or the result says the data do not determine it: never a confident
-    # wrong number.
+    # the fit finds a slow mode of 500-760 h against the fine model's 35 h, with an interval
+    # of +-20-35 %. Either the time constant is right, or the result says the data do not
+    # determine it: never a confident wrong number.
     import dataclasses
 
     spec = synthetic.fine_home("light")
@@ -121,7 +121,8 @@ def test_a_thermostat_without_setback_gets_its_time_constant_flagged():
         warnings.simplefilter("ignore", ThermorcWarning)
         result = estimate.calibrate_auto(estimate.calibration_data(log, solar_column="solar_vertical_w_m2"))
     right = result.time_constants_h[0] == pytest.approx(truth["time_constant_relevant_h"], rel=0.25)
-    assert right or any("longer than the record" in w for w in result.warnings)
+    assert right or any("time constants are not determined" in w for w in result.warnings)
+    assert result.extras["data"]["indoor_excursion_k"] < 0.5
 
 
 @pytest.mark.slow

@@ -935,3 +935,63 @@ def bound_warnings(values, lower, upper, names, rel=1e-3):
                 )
                 break
     return out
+
+
+# Below this 5-95 % range of the indoor temperature's hourly means the log shows no free
+# response (our choice, measured: a thermostat held at one setpoint all month gave 0.11-0.13 K,
+# every log with a night setback or free-floating hours at least 0.86 K; docs/calibration.md).
+MIN_INDOOR_EXCURSION_K = 0.5
+
+
+def indoor_excursion_k(indoor_c, index):
+    """
+    How far the indoor temperature moves from hour to hour: the 5-95 % range of its hourly means.
+
+    A thermostat that holds one setpoint day and night leaves the hourly means all but
+    constant; the heating then follows the load, and the slow modes of the home never show
+    in the temperature, so its time constants are not determined by the log.
+
+    Parameters
+    ----------
+    indoor_c : array_like
+        Indoor temperature; NaN where not observed. [°C]
+    index : pandas.DatetimeIndex
+        Stamps of the readings.
+
+    Returns
+    -------
+    float
+        The range [K]; NaN when no hour has a reading.
+    """
+    hourly = pd.Series(np.asarray(indoor_c, dtype=float), index=index).resample("1h").mean().dropna()
+    if hourly.empty:
+        return math.nan
+    low, high = np.percentile(hourly.to_numpy(), [5.0, 95.0])
+    return float(high - low)
+
+
+def excursion_warnings(excursion_k, threshold_k=MIN_INDOOR_EXCURSION_K):
+    """
+    A warning when the indoor temperature hardly moves from hour to hour.
+
+    Parameters
+    ----------
+    excursion_k : float
+        :func:`indoor_excursion_k` of the log. [K]
+    threshold_k : float, default :data:`MIN_INDOOR_EXCURSION_K`
+        Range below which the time constants are reported as not determined. [K]
+
+    Returns
+    -------
+    list of str
+        One sentence, or empty.
+    """
+    if not np.isfinite(excursion_k) or excursion_k >= threshold_k:
+        return []
+    return [
+        f"The indoor temperature hardly moves from hour to hour (hourly means within {excursion_k:.2f} K, "
+        f"5-95 %; under {threshold_k:g} K): the log holds no night setback or free-floating period, so the "
+        "time constants are not determined by these data, whatever their intervals say, and UA rests on "
+        "the heating's balance with the weather alone. Log a week or more with night setbacks of 2 K or "
+        "more, or with periods of the heating off."
+    ]
