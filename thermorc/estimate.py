@@ -308,7 +308,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
     gains : {'constant', 'day_night', 'four_period'} or dict
         Model of unlogged internal gains.
     theta_rc : numpy.ndarray
-        Natural logarithms of the preset's R and C from the hourly fit (the start).
+        Natural logarithms of the preset's R and C from the block fit (the start).
     max_nfev : int
         Most model runs of the search.
     start : numpy.ndarray, optional
@@ -321,17 +321,17 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
         ``time_constant_s`` [s] (0 when the log's step is over :data:`SENSOR_MAX_STEP_S`
         or the lag found is under a fifth of the step), ``fitted`` (bool), and with a fit
         ``rmse_without_k`` and ``rmse_with_k``: the sample-by-sample RMSE of the indoor
-        temperature of the hourly fit without a lag and of this fit with it [K], and
+        temperature of the block fit without a lag and of this fit with it [K], and
         ``log_solution``: the search's end point, as ``start``.
 
     Notes
     -----
-    Hourly means hardly show a lag of minutes, but within the hour a cycling heater leaves
+    Half-hour means hardly show a lag of minutes, but within them a cycling heater leaves
     a saw-tooth whose shape the sensor's lag sets. The lag is therefore fitted to the
     samples themselves, jointly with the indoor capacitance and the resistances from the
-    indoor node (the slower R and C held at the hourly optimum; the apertures, gains and
-    initial states solved exactly at each trial as in the hourly fit), by
-    :func:`scipy.optimize.least_squares` from the hourly optimum; the hourly fit is then run
+    indoor node (the slower R and C held at the block optimum; the apertures, gains and
+    initial states solved exactly at each trial as in the block fit), by
+    :func:`scipy.optimize.least_squares` from the block optimum; the block fit is then run
     again with the lag held.
     """
     if data.step_s > SENSOR_MAX_STEP_S:
@@ -347,7 +347,7 @@ def fit_sensor_lag(model, data: CalibrationData, gains, theta_rc, max_nfev=80, s
     tau_lo, tau_hi = math.log(0.1 * data.step_s), math.log(SENSOR_MAX_TAU_S)
 
     # Within the hour only the room's own capacity and the paths from it shape the saw-tooth;
-    # the slower R and C stay at the hourly optimum, which keeps the search small.
+    # the slower R and C stay at the block optimum, which keeps the search small.
     fast = np.array(["indoor" in name for name in PRESETS[model].parameters] + [True])
     theta_rc = np.asarray(theta_rc, dtype=float)
 
@@ -1543,7 +1543,7 @@ def calibrate(
         sensor["heating_timing"] = heating_timing_check(model, data, gains, sol.x[:n_rc], sensor)
         sensor.pop("log_solution", None)
         if sensor["time_constant_s"] > 0:
-            # The hourly fit again, reading the model through the lag: a lag left out biases
+            # The block fit again, reading the model through the lag: a lag left out biases
             # the indoor capacity and the gains (tests/test_estimate.py).
             start = {**layout.values(sol.x), "_ua": _ua_of(model, np.exp(sol.x[:n_rc])),
                      "_tau": layout.network(sol.x).time_constants_s()[0]}
